@@ -1,0 +1,11 @@
+"""The one exception type meant for users.
+
+Anything raised as :class:`RoamstatError` is printed by the command line as
+``roamstat: error: <message>`` with exit status 2.  The message must name the
+file, row or column at fault and say what to do about it.  Every other
+exception is a bug (exit 1; ``--debug`` shows the traceback).
+"""
+
+
+class RoamstatError(Exception):
+    """A problem with the user's input or options, explained in one line."""
