@@ -1,0 +1,1 @@
+"""Reading fixes and writing outputs: the only modules that touch files."""
