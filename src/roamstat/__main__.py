@@ -1,0 +1,5 @@
+import sys
+
+from roamstat.cli import main
+
+sys.exit(main())

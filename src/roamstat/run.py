@@ -1,0 +1,329 @@
+"""The pipeline: stages in order, from input files to output tables.
+
+Each ``load``/``analyse`` step is a plain function of tables; this module only
+orders them, hands per-animal work to :mod:`roamstat.parallel`, times the
+stages for the manifest and writes the outputs through :mod:`roamstat.io.write`.
+"""
+
+from __future__ import annotations
+
+import platform
+import sys
+import time
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from importlib import metadata
+from pathlib import Path
+
+import pandas as pd
+
+from roamstat import __version__
+from roamstat.config import Config
+from roamstat.errors import RoamstatError
+from roamstat.io.read import ReadResult, read_inputs
+from roamstat.io.write import write_csv, write_json
+from roamstat.parallel import map_animals
+from roamstat.results import AnimalResult
+from roamstat.screen import screen
+from roamstat.seeds import animal_rng
+from roamstat.track import compute_steps, prepare_fixes, summarise
+
+#: Which stages each command runs, in pipeline order.
+COMMAND_STAGES = {
+    "clean": (),
+    "steps": ("steps",),
+    "fit": ("steps", "fit"),
+    "nulltest": ("steps", "fit", "null"),
+    "ranges": ("steps", "ranges"),
+    "run": ("steps", "fit", "null", "ranges", "report"),
+}
+
+MANIFEST = "manifest.json"
+
+
+class StageClock:
+    """Start time (UTC, ISO 8601) and duration of each stage, for the manifest."""
+
+    def __init__(self) -> None:
+        self.stages: list[dict] = []
+
+    def __call__(self, name: str):
+        clock = self
+
+        class _Stage:
+            def __enter__(self):
+                self.start = time.perf_counter()
+                self.started = datetime.now(timezone.utc).isoformat(timespec="seconds")
+
+            def __exit__(self, *exc):
+                clock.stages.append({"stage": name, "start": self.started,
+                                     "duration_s": round(time.perf_counter() - self.start, 3)})
+
+        return _Stage()
+
+
+@dataclass
+class Loaded:
+    """Screened, projected fixes with their steps and per-animal summary."""
+
+    read: ReadResult
+    fixes: pd.DataFrame
+    rejected: pd.DataFrame
+    projections: dict
+    steps: pd.DataFrame | None = None
+    summary: pd.DataFrame | None = None
+
+
+@dataclass
+class RunResult:
+    loaded: Loaded
+    tables: dict = field(default_factory=dict)
+    animals: list = field(default_factory=list)
+    out_dir: Path | None = None
+    stages: list = field(default_factory=list)
+
+
+def load(paths, cfg: Config, clock: StageClock | None = None, with_steps: bool = True) -> Loaded:
+    """Read, screen and project the inputs; add steps and the summary."""
+    clock = clock or StageClock()
+    with clock("read"):
+        read = read_inputs(paths, cfg)
+    with clock("screen"):
+        fixes, rejected = screen(read.rows, cfg)
+        rejected = pd.concat([read.rejected, rejected], ignore_index=True) if len(read.rejected) else rejected
+    if len(fixes) == 0:
+        raise RoamstatError(
+            f"no fix in {_names(paths)} passed screening ({len(rejected)} rows rejected); "
+            "see the reasons with 'roamstat clean' and relax the screening options"
+        )
+    with clock("project"):
+        fixes, projections = prepare_fixes(fixes, cfg, read.input_crs)
+    loaded = Loaded(read=read, fixes=fixes, rejected=rejected, projections=projections)
+    if with_steps:
+        with clock("steps"):
+            loaded.steps = compute_steps(fixes)
+            loaded.summary = summarise(fixes, loaded.steps, rejected)
+    return loaded
+
+
+def _names(paths) -> str:
+    names = [str(p) for p in paths]
+    return ", ".join(names[:3]) + (f" and {len(names) - 3} more" if len(names) > 3 else "")
+
+
+@dataclass(frozen=True)
+class AnimalTask:
+    """The picklable unit of per-animal work."""
+
+    animal_id: str
+    fixes: pd.DataFrame
+    steps: pd.DataFrame
+    nominal_dt_s: float
+    stages: tuple
+    cfg: Config
+
+
+def analyse_animal(task: AnimalTask) -> AnimalResult:
+    """Fit models, run null tests and estimate ranges for one animal."""
+    from roamstat import compare, models, ranges
+
+    cfg, aid = task.cfg, task.animal_id
+    result = AnimalResult(animal_id=aid, fits=pd.DataFrame(), null_tests=pd.DataFrame(),
+                          residency={}, ranges=pd.DataFrame())
+    if "fit" in task.stages:
+        fitted = models.fit_animal(task.steps, cfg, animal_rng(cfg.seed, aid, "fit"))
+        result.fitted = fitted
+        result.fits = _with_id(fitted.rows, aid)
+        if "null" in task.stages:
+            rows, curves = compare.test_animal(task.fixes, task.steps, fitted, task.nominal_dt_s,
+                                               cfg, animal_rng(cfg.seed, aid, "null"))
+            result.null_tests = _with_id(rows, aid)
+            result.null_curves = curves
+    if "ranges" in task.stages:
+        row, curve = ranges.residency_animal(task.fixes, cfg)
+        result.residency = {"animal_id": aid, **row}
+        result.residency_curve = curve
+        range_rows, features, extras = ranges.ranges_animal(task.fixes, cfg)
+        result.ranges = _with_id(pd.DataFrame(range_rows), aid)
+        result.features = features
+        result.range_extras = extras
+    return result
+
+
+def _with_id(rows: pd.DataFrame, animal_id: str) -> pd.DataFrame:
+    rows = pd.DataFrame(rows).reset_index(drop=True)
+    rows.insert(0, "animal_id", animal_id)
+    return rows
+
+
+def animal_tasks(loaded: Loaded, stages: tuple, cfg: Config) -> list[AnimalTask]:
+    """One task per animal, in sorted id order (the order of every output table)."""
+    nominal = loaded.summary.set_index("animal_id")["nominal_dt_s"]
+    steps_by = dict(tuple(loaded.steps.groupby("animal_id", sort=True)))
+    tasks = []
+    for aid, fixes_a in loaded.fixes.groupby("animal_id", sort=True):
+        steps_a = steps_by.get(aid, loaded.steps.iloc[0:0])
+        tasks.append(AnimalTask(str(aid), fixes_a.reset_index(drop=True), steps_a.reset_index(drop=True),
+                                float(nominal.get(aid, float("nan"))), stages, cfg))
+    return tasks
+
+
+def analyse(loaded: Loaded, stages: tuple, cfg: Config, clock: StageClock) -> tuple[dict, list]:
+    """Per-animal stages in parallel, then the deployment-level ones."""
+    from roamstat import compare, ranges
+
+    tables: dict[str, pd.DataFrame] = {}
+    per_animal = [s for s in stages if s in ("fit", "null", "ranges")]
+    if not per_animal:
+        return tables, []
+    with clock("analyse:" + "+".join(per_animal)):
+        animals = map_animals(analyse_animal, animal_tasks(loaded, tuple(stages), cfg),
+                              workers=cfg.workers, scheduler=cfg.scheduler, quiet=cfg.quiet)
+    with clock("deployment"):
+        if "fit" in stages:
+            tables["fits"] = _concat([a.fits for a in animals])
+        if "null" in stages:
+            tables["null_tests"] = compare.finalise(_concat([a.null_tests for a in animals]), cfg)
+        if "ranges" in stages:
+            residency = pd.DataFrame([a.residency for a in animals])
+            tables["residency"] = ranges.finalise_residency(residency, tables.get("null_tests"))
+            tables["ranges"] = _concat([a.ranges for a in animals])
+            tables["ranges_geojson"] = ranges.feature_collection([f for a in animals for f in a.features])
+    return tables, animals
+
+
+def _concat(frames: list[pd.DataFrame]) -> pd.DataFrame:
+    frames = [f for f in frames if len(f)]
+    return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
+
+
+def prepare_out_dir(out_dir: Path, inputs, force: bool) -> Path:
+    """Refuse an output folder that is an input, or holds foreign files (unless --force)."""
+    out_dir = Path(out_dir)
+    resolved_inputs = {Path(p).resolve() for p in inputs}
+    if out_dir.resolve() in resolved_inputs:
+        raise RoamstatError(f"--out {out_dir} is one of the input files; choose a new folder for the outputs")
+    if out_dir.exists() and not out_dir.is_dir():
+        raise RoamstatError(f"--out {out_dir} exists and is not a folder; choose a new folder for the outputs")
+    if out_dir.is_dir() and any(out_dir.iterdir()) and not (out_dir / MANIFEST).is_file() and not force:
+        raise RoamstatError(
+            f"--out {out_dir} is a non-empty folder that holds no earlier roamstat output; "
+            "choose a new or empty folder, or add --force to write into it"
+        )
+    out_dir.mkdir(parents=True, exist_ok=True)
+    return out_dir
+
+
+def run_command(command: str, paths, out_dir, cfg: Config, argv: list[str] | None = None) -> RunResult:
+    """Run one command's stages and write its outputs into ``out_dir``."""
+    stages = COMMAND_STAGES[command]
+    if "report" in stages and not cfg.report:
+        stages = tuple(s for s in stages if s != "report")
+    out_dir = prepare_out_dir(Path(out_dir), paths, cfg.force)
+    clock = StageClock()
+    started = time.perf_counter()
+    loaded = load(paths, cfg, clock, with_steps="steps" in stages)
+    tables, animals = analyse(loaded, stages, cfg, clock)
+    result = RunResult(loaded=loaded, tables=tables, animals=animals, out_dir=out_dir, stages=clock.stages)
+    with clock("write"):
+        write_tables(out_dir, loaded, tables, cfg)
+    if "report" in stages:
+        from roamstat.report import write_report
+
+        with clock("report"):
+            write_report(out_dir, report_tables(loaded, tables), animals, run_info(loaded, cfg, argv), cfg)
+    manifest = build_manifest(command, loaded, cfg, argv, clock.stages, time.perf_counter() - started)
+    write_json(manifest, out_dir / MANIFEST)
+    return result
+
+
+def output_name(stem: str, cfg: Config) -> str:
+    return f"{stem}.parquet" if cfg.output_format == "parquet" else f"{stem}.csv"
+
+
+def write_table(table: pd.DataFrame, path: Path, cfg: Config) -> None:
+    if cfg.output_format == "parquet":
+        from roamstat.io.parquet import write_parquet
+
+        write_parquet(table, path)
+    else:
+        write_csv(table, path)
+
+
+def write_tables(out_dir: Path, loaded: Loaded, tables: dict, cfg: Config) -> None:
+    from roamstat.io.write import write_json as _json
+
+    named = {"fixes": fixes_for_output(loaded.fixes, cfg), "rejected": loaded.rejected}
+    if loaded.steps is not None:
+        named["steps"] = loaded.steps
+        named["summary"] = loaded.summary
+    named.update({k: v for k, v in tables.items() if k != "ranges_geojson"})
+    for stem, table in named.items():
+        write_table(table, out_dir / output_name(stem, cfg), cfg)
+    if "ranges_geojson" in tables:
+        _json(tables["ranges_geojson"], out_dir / "ranges.geojson")
+
+
+def fixes_for_output(fixes: pd.DataFrame, cfg: Config) -> pd.DataFrame:
+    """fixes.csv: exact coordinates unless masking is on (then planar ones only)."""
+    if not cfg.mask_locations:
+        return fixes
+    from roamstat.ranges import mask_fixes
+
+    return mask_fixes(fixes, cfg)
+
+
+def report_tables(loaded: Loaded, tables: dict) -> dict:
+    out = {"summary": loaded.summary, "rejected": loaded.rejected}
+    out.update({k: v for k, v in tables.items() if isinstance(v, pd.DataFrame)})
+    return out
+
+
+def run_info(loaded: Loaded, cfg: Config, argv) -> dict:
+    return {
+        "version": __version__,
+        "command_line": " ".join(argv or []),
+        "seed": cfg.seed,
+        "n_read": loaded.read.n_read,
+        "n_kept": int(len(loaded.fixes)),
+        "n_rejected": int(len(loaded.rejected)),
+        "projections": loaded.projections,
+        "masked": cfg.mask_locations,
+        "inputs": [f["path"] for f in loaded.read.files],
+    }
+
+
+def package_versions() -> dict:
+    names = ["numpy", "pandas", "scipy", "pyproj", "matplotlib", "shapely", "tqdm", "pyarrow", "dask", "distributed"]
+    versions = {}
+    for name in names:
+        try:
+            versions[name] = metadata.version(name)
+        except metadata.PackageNotFoundError:
+            continue
+    return versions
+
+
+def build_manifest(command, loaded: Loaded, cfg: Config, argv, stages, duration_s) -> dict:
+    """Everything needed to reproduce the run."""
+    read = loaded.read
+    return {
+        "roamstat": __version__,
+        "command": command,
+        "command_line": ["roamstat", *(argv or [])],
+        "parameters": cfg.as_dict(),
+        "seed": cfg.seed,
+        "inputs": [{k: f[k] for k in ("path", "size_bytes", "sha256", "encoding", "delimiter", "columns", "n_rows", "notes") if k in f}
+                   for f in read.files],
+        "time_zone_of_naive_times": read.tz_note,
+        "rows": {"read": read.n_read, "kept": int(len(loaded.fixes)), "rejected": int(len(loaded.rejected))},
+        "rejected_by_reason": {str(k): int(v) for k, v in loaded.rejected["reason_code"].value_counts().sort_index().items()}
+        if len(loaded.rejected) else {},
+        "projections": loaded.projections,
+        "python": platform.python_version(),
+        "platform": platform.platform(),
+        "packages": package_versions(),
+        "stages": stages,
+        "duration_s": round(duration_s, 3),
+        "executable": sys.executable,
+    }
