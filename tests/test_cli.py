@@ -1,0 +1,101 @@
+"""The command line contract: outputs, manifest, reruns, and one-line errors with exit 2."""
+
+from __future__ import annotations
+
+import hashlib
+import json
+
+import pandas as pd
+import pytest
+
+from roamstat.cli import main
+
+
+def run_cli(*args, capsys):
+    code = main([str(a) for a in args])
+    captured = capsys.readouterr()
+    return code, captured.out, captured.err
+
+
+def assert_user_error(code, err, *fragments):
+    assert code == 2
+    lines = [line for line in err.strip().splitlines() if line]
+    assert len(lines) == 1, err
+    assert lines[0].startswith("roamstat: error: ")
+    for fragment in fragments:
+        assert fragment in lines[0]
+
+
+def test_missing_file_is_a_one_line_error(tmp_path, capsys):
+    missing = tmp_path / "nope.csv"
+    code, _, err = run_cli("steps", missing, "--out", tmp_path / "o", capsys=capsys)
+    assert_user_error(code, err, "nope.csv")
+
+
+def test_directory_as_input_is_a_one_line_error(tmp_path, capsys):
+    code, _, err = run_cli("clean", tmp_path, "--out", tmp_path / "o", capsys=capsys)
+    assert_user_error(code, err, str(tmp_path))
+
+
+def test_out_that_is_an_input_is_refused(sample_csv, tmp_path, capsys):
+    copy = tmp_path / "in.csv"
+    copy.write_bytes(sample_csv.read_bytes())
+    code, _, err = run_cli("clean", copy, "--out", copy, capsys=capsys)
+    assert_user_error(code, err, "--out")
+
+
+def test_foreign_non_empty_out_needs_force(sample_csv, tmp_path, capsys):
+    out = tmp_path / "o"
+    out.mkdir()
+    (out / "thesis.docx").write_text("precious")
+    code, _, err = run_cli("clean", sample_csv, "--out", out, "--quiet", capsys=capsys)
+    assert_user_error(code, err, "--force")
+    assert (out / "thesis.docx").read_text() == "precious"
+    code, _, _ = run_cli("clean", sample_csv, "--out", out, "--quiet", "--force", capsys=capsys)
+    assert code == 0
+
+
+def test_steps_accounts_for_every_row_and_manifest_hashes_input(sample_csv, tmp_path, capsys):
+    out = tmp_path / "o"
+    code, _, err = run_cli("steps", sample_csv, "--out", out, capsys=capsys)
+    assert code == 0, err
+    fixes = pd.read_csv(out / "fixes.csv")
+    rejected = pd.read_csv(out / "rejected.csv")
+    manifest = json.loads((out / "manifest.json").read_text())
+    assert manifest["rows"]["read"] == len(fixes) + len(rejected)
+    assert manifest["inputs"][0]["sha256"] == hashlib.sha256(sample_csv.read_bytes()).hexdigest()
+    assert set(pd.read_csv(out / "steps.csv").columns) >= {
+        "animal_id", "segment", "t_start", "t_end", "dt_s", "step_m", "heading_rad", "turn_rad", "speed_m_s"}
+    assert "outputs in" in err
+
+
+def test_bad_null_name_is_a_user_error(sample_csv, tmp_path, capsys):
+    code, _, err = run_cli("nulltest", sample_csv, "--out", tmp_path / "o", "--null", "crw,brownian", capsys=capsys)
+    assert_user_error(code, err, "--null")
+
+
+def test_workers_must_be_positive(sample_csv, tmp_path, capsys):
+    code, _, err = run_cli("steps", sample_csv, "--out", tmp_path / "o", "--workers", "0", capsys=capsys)
+    assert_user_error(code, err, "--workers")
+
+
+def test_inspect_writes_nothing(sample_csv, tmp_path, capsys, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    code, out, err = run_cli("inspect", sample_csv, capsys=capsys)
+    assert code == 0, err
+    assert list(tmp_path.iterdir()) == []
+    assert "frame" in out
+
+
+def test_unexpected_errors_point_to_debug(sample_csv, tmp_path, capsys, monkeypatch):
+    import roamstat.run
+
+    def boom(*a, **k):
+        raise ZeroDivisionError("simulated bug")
+
+    monkeypatch.setattr(roamstat.run, "compute_steps", boom)
+    code, _, err = run_cli("steps", sample_csv, "--out", tmp_path / "o", capsys=capsys)
+    assert code == 1
+    assert "--debug" in err and "Traceback" not in err
+    with pytest.raises(ZeroDivisionError):
+        main(["--debug", "steps", str(sample_csv), "--out", str(tmp_path / "o2")])
