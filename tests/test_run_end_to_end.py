@@ -19,13 +19,12 @@ from roamstat.cli import main
 
 TABLES = ["fixes.csv", "rejected.csv", "steps.csv", "summary.csv", "fits.csv", "null_tests.csv",
           "residency.csv", "ranges.csv"]
+SAMPLE = Path(__file__).resolve().parents[1] / "sample_tracks" / "collars.csv"
 FAST = ["--replicates", "99", "--quiet"]
 
 
 @pytest.fixture(scope="module")
 def sample_run(tmp_path_factory):
-    from tests.conftest import SAMPLE
-
     out = tmp_path_factory.mktemp("run") / "out"
     assert main(["run", str(SAMPLE), "--out", str(out), *FAST]) == 0
     return SAMPLE, out
