@@ -75,7 +75,7 @@ def _run_dask(func, tasks, scheduler, bar) -> list:
             "pip install 'roamstat[cluster]', or drop --scheduler to run on this machine"
         ) from None
     try:
-        client = Client(scheduler, timeout="20s", set_as_default=False)
+        client = Client(scheduler, timeout="20s")
     except (OSError, TimeoutError) as exc:
         raise RoamstatError(f"--scheduler {scheduler}: cannot reach the Dask scheduler ({exc}); check the address") from None
     try:
