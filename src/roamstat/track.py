@@ -32,6 +32,8 @@ Conventions
 
 from __future__ import annotations
 
+import re
+
 import numpy as np
 import pandas as pd
 from pyproj.exceptions import CRSError
@@ -57,6 +59,8 @@ COMMON_SCHEDULES_S = np.array(
 )
 #: An interval within this relative tolerance of the nominal one counts as on schedule.
 SCHEDULE_TOLERANCE = 0.10
+#: A common schedule must hold this share of the intervals to be taken as the nominal one.
+MIN_SCHEDULE_SHARE = 0.25
 #: Resampling refuses to create more grid rows than this (a typo such as "1s" for "1h").
 MAX_GRID_ROWS = 20_000_000
 
@@ -128,9 +132,9 @@ def fix_schedule(times) -> dict:
     The nominal interval is the common collar schedule (1 s ... 1 week, see
     :data:`COMMON_SCHEDULES_S`) that the most intervals lie within 10 % of
     (ties: the shorter), which stays right when many fixes are missed (the
-    median then drifts to twice the schedule).  When fewer than half of the
-    intervals are within 10 % of any common schedule, the schedule is
-    irregular and the nominal interval is the median, rounded to whole
+    median then drifts to a multiple of the schedule).  When no common
+    schedule holds at least a quarter of the intervals, the schedule is taken
+    as irregular and the nominal interval is the median, rounded to whole
     seconds.  ``regularity`` is the share of intervals within 10 % of the
     nominal one.  Zero intervals (same time twice) are ignored.
 
@@ -159,8 +163,8 @@ def _schedule_from_ns(ns_sorted: np.ndarray) -> dict:
     edges = np.sqrt(COMMON_SCHEDULES_S[1:] * COMMON_SCHEDULES_S[:-1])
     nearest = np.searchsorted(edges, dt)
     near_ok = np.abs(dt / COMMON_SCHEDULES_S[nearest] - 1) <= SCHEDULE_TOLERANCE
-    if near_ok.mean() >= 0.5:
-        counts = np.bincount(nearest[near_ok], minlength=COMMON_SCHEDULES_S.size)
+    counts = np.bincount(nearest[near_ok], minlength=COMMON_SCHEDULES_S.size)
+    if counts.max() >= MIN_SCHEDULE_SHARE * dt.size:
         nominal = float(COMMON_SCHEDULES_S[int(np.argmax(counts))])
     else:
         nominal = float(max(round(median), 1.0)) if median >= 1 else median
@@ -244,8 +248,10 @@ def _from_ns(ns: np.ndarray) -> pd.Series:
 
 
 def _duration_ns(text: str, option: str) -> int:
+    # "1d" and "6H" as people write them; pandas wants "1D" and "6h".
+    spelled = re.sub(r"(\d)\s*d(?![a-z])", r"\1D", str(text).strip().lower())
     try:
-        value = pd.Timedelta(str(text).strip())
+        value = pd.Timedelta(spelled)
     except ValueError:
         value = None
     if value is None or value is pd.NaT or value <= pd.Timedelta(0):
