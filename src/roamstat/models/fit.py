@@ -1,0 +1,328 @@
+"""Fit every step-length and turning-angle family to one animal and compare them.
+
+Which observations are used
+---------------------------
+Steps of length <= ``cfg.min_step`` metres are left out of the step fits and
+counted (``n_excluded_steps``, and the ``note`` of every step row).  The
+default 0.0 drops only zero-length steps, which no continuous family can
+describe.  GPS error makes the shortest steps mostly measurement noise: for a
+stationary collar the apparent step is about the error itself.  A sensible
+``--min-step`` is a few times the typical horizontal error of the collars,
+roughly 5-20 m for modern GPS fixes (more for Argos-type locations); the
+excluded count shows how much of the track that removes.  With
+``min_step > 0`` the turning angles on either side of such a short step are
+left out too (a heading over a few metres of jitter is noise); they are counted
+in the turn rows' note.
+
+Comparison sets (``comparison`` column)
+---------------------------------------
+- ``full``: exponential, gamma, Weibull and lognormal on all step values.
+- ``tail``: power law, truncated power law, and exponential and lognormal with
+  their likelihood left-truncated at xmin, all on the steps x >= xmin, where
+  xmin comes from the power-law KS scan (Clauset et al. 2009, §3.3).
+- ``turn``: uniform, von Mises and wrapped Cauchy on all defined turns.
+``delta_aic``, ``weight`` (Akaike weight) and ``best`` (lowest AIC) are
+computed within each set only, because AIC compares models of the same data.
+
+Vuong columns (tail rows)
+-------------------------
+On every tail row except the power law's own, ``vuong_stat`` is the
+normalised log-likelihood ratio of *that row's model against the power law*
+(positive: the row's model fits better; negative: the power law does) and
+``vuong_p`` the two-sided p-value of its sign (Clauset et al. 2009, §5).  The
+power law is the xmax -> infinity limit of the truncated power law, so those two
+are nested and Vuong's normal approximation does not hold; that row's p-value
+is the likelihood-ratio test with chi-square(1) on 2|R| that Clauset et al.
+use for nested pairs, and it is only approximate because the nesting is at a
+boundary.
+
+When is a power-law (Lévy-like) tail "supported"?
+-------------------------------------------------
+``AnimalFits.tail_supported`` is True only when the better of power law and
+truncated power law has the lowest AIC in the tail set AND the power law
+beats both the left-truncated exponential and the left-truncated lognormal by
+Vuong's test (negative statistic on their rows with p < 0.1, the threshold of
+Clauset et al. 2009, §5).  The lognormal in particular mimics a power law over
+a limited range, so a lowest AIC alone is not evidence of a Lévy walk.  Such a
+verdict supports, not replaces, expert judgement of the movement data.
+
+References
+----------
+Clauset, A., Shalizi, C. R. & Newman, M. E. J. (2009). Power-law
+distributions in empirical data. SIAM Review 51: 661-703.
+Edwards, A. M. et al. (2007). Revisiting Lévy flight search patterns of
+wandering albatrosses, bumblebees and deer. Nature 449: 1044-1048.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from dataclasses import dataclass, field
+from functools import partial
+from typing import Mapping
+
+import numpy as np
+import pandas as pd
+
+from roamstat.models.base import FittedModel, StepModel, TurnModel
+from roamstat.models.bootstrap import bootstrap_ci, ci_json
+from roamstat.models.powerlaw_tail import MIN_TAIL, fit_power_law, fit_truncated_power_law
+from roamstat.models.select import akaike_weights, ks_statistic, vuong_test
+from roamstat.models.steps import FULL_RANGE, TAIL_REFIT, fit_step_family
+from roamstat.models.turns import fit_uniform, fit_von_mises, fit_wrapped_cauchy
+
+MIN_VALUES = 10  # fewest observations for any fit (common practice, no source)
+VUONG_P = 0.1  # significance of the sign of the Vuong statistic (Clauset et al. 2009, §5)
+
+COLUMNS = ["variable", "model", "comparison", "params", "n", "loglik", "aic", "aicc", "delta_aic",
+           "weight", "ks_stat", "best", "vuong_stat", "vuong_p", "note"]
+
+
+@dataclass
+class AnimalFits:
+    """All fits for one animal.
+
+    Attributes
+    ----------
+    rows : DataFrame
+        ``fits.csv`` rows without ``animal_id`` (columns ``COLUMNS``, plus
+        ``params_ci`` when bootstrap intervals were asked for).
+    best_step : StepModel or None
+        Lowest-AIC model of the ``full`` (light-tailed) set.
+    best_turn : TurnModel or None
+        Lowest-AIC turn model.
+    tail : StepModel or None
+        The better (AIC) of power law and truncated power law on x >= xmin;
+        its ``support[0]`` is xmin.
+    step_values, turn_values : ndarray
+        The observations the fits used.
+    n_excluded_steps : int
+        Steps <= min_step left out.
+    note : str
+        Why something is missing ("" when nothing is).
+    tail_supported : bool
+        The power-law-tail rule of this module's docstring.
+    """
+
+    rows: pd.DataFrame
+    best_step: StepModel | None
+    best_turn: TurnModel | None
+    tail: StepModel | None
+    step_values: np.ndarray
+    turn_values: np.ndarray
+    n_excluded_steps: int
+    note: str = ""
+    tail_supported: bool = False
+    models: dict = field(default_factory=dict)  # (comparison, model name) -> fitted model
+
+
+@dataclass
+class _Candidate:
+    """One row-to-be: a family fitted (or not) to one comparison set."""
+
+    variable: str
+    comparison: str
+    name: str
+    data: np.ndarray
+    model: FittedModel | None
+    note: str
+    vuong: tuple = (math.nan, math.nan)
+
+
+def fit_animal(steps_a: pd.DataFrame, cfg, rng: np.random.Generator) -> AnimalFits:
+    """Fit and compare all step-length and turning-angle families for one animal.
+
+    Parameters
+    ----------
+    steps_a : DataFrame
+        The animal's steps (``step_m``, ``turn_rad``, ``segment`` of the data contract).
+    cfg : Config
+        Uses ``min_step`` (metres) and ``bootstrap`` (replicates; 0 = none).
+    rng : numpy.random.Generator
+        Used only for bootstrap replicates.
+
+    Returns
+    -------
+    AnimalFits
+    """
+    steps, turns, n_excl, counts_note, turn_note = _observations(steps_a, cfg.min_step)
+    notes = []
+    candidates = []
+
+    problem = _too_little(steps, "step lengths")
+    if problem:
+        candidates.append(_Candidate("step", "full", "none", steps, None, _join(problem, counts_note)))
+        notes.append(f"step: {problem}")
+    else:
+        for name in FULL_RANGE:
+            candidates.append(_attempt("step", "full", name, steps, partial(fit_step_family, name), counts_note))
+        tail_set, tail_problem = _tail_candidates(steps, counts_note)
+        candidates += tail_set
+        if tail_problem:
+            notes.append(f"tail: {tail_problem}")
+
+    problem = _too_little(turns, "turning angles")
+    if problem:
+        candidates.append(_Candidate("turn", "turn", "none", turns, None, _join(problem, turn_note)))
+        notes.append(f"turn: {problem}")
+    else:
+        for name, fitter in (("uniform", fit_uniform), ("von_mises", fit_von_mises),
+                             ("wrapped_cauchy", fit_wrapped_cauchy)):
+            candidates.append(_attempt("turn", "turn", name, turns, fitter, turn_note))
+
+    rows = _rows(candidates)
+    if cfg.bootstrap > 0:
+        rows["params_ci"] = [_ci_text(c, cfg.bootstrap, rng) for c in candidates]
+    models = {(c.comparison, c.name): c.model for c in candidates if c.model is not None}
+    best = {r.comparison: models[(r.comparison, r.model)] for r in rows.itertuples() if r.best}
+    tail = _better(models.get(("tail", "power_law")), models.get(("tail", "truncated_power_law")))
+    return AnimalFits(rows=rows, best_step=best.get("full"), best_turn=best.get("turn"), tail=tail,
+                      step_values=steps, turn_values=turns, n_excluded_steps=n_excl,
+                      note="; ".join(notes), tail_supported=_tail_supported(rows, tail), models=models)
+
+
+def fits_table(fits_by_animal: Mapping[str, AnimalFits]) -> pd.DataFrame:
+    """``fits.csv`` for several animals: their rows with ``animal_id`` first, in sorted id order.
+
+    Parameters
+    ----------
+    fits_by_animal : mapping
+        animal_id -> AnimalFits.
+
+    Returns
+    -------
+    DataFrame
+    """
+    parts = []
+    for aid in sorted(fits_by_animal):
+        part = fits_by_animal[aid].rows.copy()
+        part.insert(0, "animal_id", aid)
+        parts.append(part)
+    if not parts:
+        return pd.DataFrame(columns=["animal_id", *COLUMNS])
+    return pd.concat(parts, ignore_index=True)
+
+
+def _observations(steps_a: pd.DataFrame, min_step: float):
+    """Step and turn values used by the fits, with counts of what was left out."""
+    step = pd.to_numeric(steps_a.get("step_m", pd.Series(dtype=float)), errors="coerce").to_numpy(float)
+    turn = pd.to_numeric(steps_a.get("turn_rad", pd.Series(np.nan, index=steps_a.index)),
+                         errors="coerce").to_numpy(float)
+    missing = ~np.isfinite(step)
+    short = np.isfinite(step) & (step <= min_step)
+    n_excl = int(short.sum())
+    parts = []
+    if n_excl:
+        parts.append(f"{n_excl} steps <= min_step {min_step:g} m left out")
+    if missing.any():
+        parts.append(f"{int(missing.sum())} steps without a length left out")
+    turn_ok = np.isfinite(turn)
+    turn_note = ""
+    if min_step > 0 and turn_ok.any():
+        segment = steps_a["segment"] if "segment" in steps_a else pd.Series(0, index=steps_a.index)
+        prev_short = pd.Series(short, index=steps_a.index).groupby(segment.to_numpy()).shift(1)
+        near_short = short | prev_short.fillna(False).to_numpy(bool)
+        n_turn_excl = int((turn_ok & near_short).sum())
+        turn_ok &= ~near_short
+        if n_turn_excl:
+            turn_note = f"{n_turn_excl} turns next to a step <= min_step {min_step:g} m left out"
+    return step[~missing & ~short], turn[turn_ok], n_excl, "; ".join(parts), turn_note
+
+
+def _too_little(x: np.ndarray, what: str) -> str:
+    if x.size < MIN_VALUES:
+        return f"not enough data: {x.size} {what} (need {MIN_VALUES})"
+    if np.ptp(x) == 0:
+        return f"not enough data: all {x.size} {what} equal ({x[0]:g})"
+    return ""
+
+
+def _attempt(variable, comparison, name, data, fitter, note, vuong_against=None, nested=False):
+    try:
+        model = fitter(data)
+    except (FloatingPointError, ValueError, RuntimeError) as exc:
+        return _Candidate(variable, comparison, name, data, None, _join(f"fit failed: {exc}", note))
+    if model is None:
+        return _Candidate(variable, comparison, name, data, None, _join("fit failed", note))
+    vuong = (math.nan, math.nan)
+    if vuong_against is not None:
+        vuong = vuong_test(model.logpdf(data), vuong_against.logpdf(data), nested=nested)
+    return _Candidate(variable, comparison, name, data, model, note, vuong)
+
+
+def _tail_candidates(steps: np.ndarray, counts_note: str):
+    power = fit_power_law(steps)
+    if power is None:
+        problem = f"not enough data for a tail fit (need {MIN_TAIL} steps at or above a candidate xmin)"
+        return [_Candidate("step", "tail", "none", steps, None, _join(problem, counts_note))], problem
+    xmin = power.xmin
+    tail = np.sort(steps[steps >= xmin])
+    where = f"tail x >= xmin {xmin:.6g} m: {tail.size} of {steps.size} steps"
+    out = [_Candidate("step", "tail", "power_law", tail, power, _join(where, counts_note))]
+    nested_note = ("the power law is this model's xmax -> inf limit (nested): vuong_p from chi-square(1) "
+                   "on 2|LLR|, approximate")
+    out.append(_attempt("step", "tail", "truncated_power_law", tail,
+                        partial(fit_truncated_power_law, xmin=xmin), _join(where, nested_note, counts_note),
+                        vuong_against=power, nested=True))
+    for name in TAIL_REFIT:
+        out.append(_attempt("step", "tail", name, tail, partial(fit_step_family, name, xmin=xmin),
+                            _join(where, "likelihood left-truncated at xmin", counts_note),
+                            vuong_against=power))
+    return out, ""
+
+
+def _rows(candidates) -> pd.DataFrame:
+    records = []
+    for c in candidates:
+        m = c.model
+        records.append({
+            "variable": c.variable, "model": c.name, "comparison": c.comparison,
+            "params": json.dumps(m.params if m else {}, sort_keys=True),
+            "n": int(m.n if m else c.data.size),
+            "loglik": m.loglik if m else math.nan, "aic": m.aic if m else math.nan,
+            "aicc": m.aicc if m else math.nan, "delta_aic": math.nan, "weight": math.nan,
+            "ks_stat": ks_statistic(c.data, m.cdf) if m else math.nan, "best": False,
+            "vuong_stat": c.vuong[0], "vuong_p": c.vuong[1], "note": c.note,
+        })
+    rows = pd.DataFrame.from_records(records, columns=COLUMNS)
+    for _, idx in rows.groupby("comparison", sort=False).groups.items():
+        aic = rows.loc[idx, "aic"].astype(float)
+        delta, weight = akaike_weights(aic)
+        rows.loc[idx, "delta_aic"] = delta
+        rows.loc[idx, "weight"] = weight
+        if aic.notna().any():
+            rows.loc[aic.idxmin(), "best"] = True  # the first listed wins an exact tie
+    return rows
+
+
+def _ci_text(c: _Candidate, replicates: int, rng: np.random.Generator) -> str:
+    if c.model is None:
+        return ci_json({})
+    ci, _ = bootstrap_ci(c.model, replicates, rng)
+    return ci_json(ci)
+
+
+def _better(a: StepModel | None, b: StepModel | None) -> StepModel | None:
+    if a is None or b is None:
+        return a or b
+    return b if b.aic < a.aic else a
+
+
+def _tail_supported(rows: pd.DataFrame, tail: StepModel | None) -> bool:
+    if tail is None:
+        return False
+    t = rows[rows["comparison"] == "tail"].set_index("model")
+    if tail.name not in t.index or not bool(t.at[tail.name, "best"]):
+        return False
+    for alternative in TAIL_REFIT:
+        if alternative not in t.index:
+            return False
+        stat, p = t.at[alternative, "vuong_stat"], t.at[alternative, "vuong_p"]
+        if not (stat < 0 and p < VUONG_P):
+            return False
+    return True
+
+
+def _join(*parts: str) -> str:
+    return "; ".join(p for p in parts if p)
