@@ -61,8 +61,11 @@ def geodesic_inverse_full(lat1, lon1, lat2, lon2):
     """
     lat1, lon1, lat2, lon2 = (np.asarray(a, dtype=float) for a in (lat1, lon1, lat2, lon2))
     az12, az21, dist = WGS84.inv(lon1, lat1, lon2, lat2)
-    depart = _wrap(np.deg2rad(np.asarray(az12, dtype=float)))
-    arrive = _wrap(np.deg2rad(np.asarray(az21, dtype=float)) + np.pi)
+    # PROJ returns azimuths in [-180, 180]; only the ends of the range need moving.
+    depart = np.deg2rad(np.asarray(az12, dtype=float))
+    depart[depart <= -np.pi] += 2 * np.pi
+    arrive = np.deg2rad(np.asarray(az21, dtype=float))
+    arrive += np.where(arrive > 0, -np.pi, np.pi)
     return np.asarray(dist, dtype=float), depart, arrive
 
 
@@ -71,12 +74,6 @@ def geodesic_forward(lat, lon, azimuth_rad, dist_m):
     lat, lon, az, dist = (np.asarray(a, dtype=float) for a in (lat, lon, azimuth_rad, dist_m))
     lon2, lat2, _ = WGS84.fwd(lon, lat, np.rad2deg(az), dist)
     return np.asarray(lat2, dtype=float), np.asarray(lon2, dtype=float)
-
-
-def _wrap(a):
-    # Same rule as track.wrap_angle; kept here so geo has no upward import.
-    w = np.pi - np.mod(np.pi - a, 2 * np.pi)
-    return np.where(w <= -np.pi, w + 2 * np.pi, w)
 
 
 def animal_projection(lat0: float, lon0: float) -> CRS:

@@ -225,6 +225,8 @@ def _sorted(fixes: pd.DataFrame) -> pd.DataFrame:
     out["animal_id"] = out["animal_id"].astype(str)
     codes = pd.factorize(out["animal_id"], sort=True)[0]
     order = np.lexsort((_as_ns(out["time"]), codes))  # stable: equal keys keep input order
+    if np.array_equal(order, np.arange(order.size)):
+        return out
     return out.iloc[order].reset_index(drop=True)
 
 
@@ -389,6 +391,15 @@ def _ordered(fixes: pd.DataFrame) -> pd.DataFrame:
 # --------------------------------------------------------------------------- steps
 
 
+def _rows(fixes: pd.DataFrame, columns: list[str], flag: str, keep: bool = True) -> pd.DataFrame:
+    """The named columns of the rows whose ``flag`` column equals ``keep`` (all rows without it)."""
+    table = fixes[columns]
+    if flag not in fixes:
+        return table
+    mask = fixes[flag].to_numpy(bool) == keep
+    return table if mask.all() else table[mask]
+
+
 def compute_steps(fixes: pd.DataFrame) -> pd.DataFrame:
     """One row per consecutive pair of analysed fixes within a segment.
 
@@ -414,7 +425,7 @@ def compute_steps(fixes: pd.DataFrame) -> pd.DataFrame:
     ----------
     Karney, C. F. F. (2013). Algorithms for geodesics. J. Geodesy 87, 43-55.
     """
-    track = fixes[fixes["on_grid"].to_numpy(bool)] if "on_grid" in fixes else fixes
+    track = _rows(fixes, ["animal_id", "segment", "time", "lat", "lon"], "on_grid")
     codes = pd.factorize(track["animal_id"], sort=True)[0]
     seg = track["segment"].to_numpy()
     pair = np.flatnonzero((codes[1:] == codes[:-1]) & (seg[1:] == seg[:-1]))
@@ -474,65 +485,76 @@ def summarise(fixes: pd.DataFrame, steps: pd.DataFrame, rejected: pd.DataFrame) 
     animal's path: straightness, sinuosity, or fractal dimension? Journal of
     Theoretical Biology 229, 209-220.
     """
-    observed = fixes[~fixes["interpolated"].to_numpy(bool)] if "interpolated" in fixes else fixes
-    track = fixes[fixes["on_grid"].to_numpy(bool)] if "on_grid" in fixes else fixes
+    observed = _rows(fixes, ["animal_id", "segment", "time"], "interpolated", keep=False)
+    track = _rows(fixes, ["animal_id", "segment", "lat", "lon"], "on_grid")
     if len(observed) == 0:
         return pd.DataFrame({c: [] for c in SUMMARY_COLUMNS})
-    ids = np.array(sorted(observed["animal_id"].astype(str).unique()), dtype=object)
-    index = pd.Index(ids, name="animal_id")
-
-    obs_ns = _as_ns(observed["time"])
     obs_codes, obs_starts = _animal_blocks(observed["animal_id"].astype(str))
-    schedules = pd.DataFrame([_schedule_from_ns(b) for b in np.split(obs_ns, obs_starts[1:])], index=ids)
-    segs = observed.groupby(observed["animal_id"].astype(str))["segment"].nunique()
+    ids = observed["animal_id"].astype(str).to_numpy()[obs_starts]
+    obs_ends = np.r_[obs_starts[1:] - 1, len(observed) - 1]
+    obs_ns = _as_ns(observed["time"])
+    schedules = pd.DataFrame([_schedule_from_ns(b) for b in np.split(obs_ns, obs_starts[1:])])
 
-    out = pd.DataFrame(index=index)
+    out = pd.DataFrame({"animal_id": ids})
     out["n_fixes"] = np.bincount(obs_codes, minlength=ids.size)
-    n_rej = rejected["animal_id"].dropna().astype(str).value_counts() if len(rejected) and "animal_id" in rejected else pd.Series(dtype=int)
-    out["n_rejected"] = n_rej.reindex(index, fill_value=0).astype(np.int64).to_numpy()
-    out["first_time"] = _from_ns(obs_ns[obs_starts]).set_axis(index)
-    out["last_time"] = _from_ns(obs_ns[np.r_[obs_starts[1:] - 1, obs_ns.size - 1]]).set_axis(index)
-    out["median_dt_s"] = schedules["median_dt_s"].to_numpy()
-    out["nominal_dt_s"] = schedules["nominal_dt_s"].to_numpy()
-    out["regularity"] = schedules["regularity"].to_numpy()
-    out["n_segments"] = segs.reindex(index, fill_value=0).astype(np.int64).to_numpy()
+    out["n_rejected"] = _count_by(rejected["animal_id"], ids) if "animal_id" in rejected else 0
+    out["first_time"] = _from_ns(obs_ns[obs_starts])
+    out["last_time"] = _from_ns(obs_ns[obs_ends])
+    for name in ("median_dt_s", "nominal_dt_s", "regularity"):
+        out[name] = schedules[name].to_numpy()
+    out["n_segments"] = observed["segment"].to_numpy()[obs_ends].astype(np.int64) + 1  # numbered 0, 1, ...
 
-    by = steps.groupby(steps["animal_id"].astype(str))
+    code = _codes_in(steps["animal_id"], ids)
+    if (code < 0).any():
+        raise ValueError("steps of an animal without fixes: steps and fixes do not belong together")
     step = steps["step_m"].to_numpy(float)
-    stats = pd.DataFrame({
-        "n": by.size(),
-        "zero": (steps["step_m"] == 0).groupby(steps["animal_id"].astype(str)).sum(),
-        "path": by["step_m"].sum(),
-        "mean": by["step_m"].mean(),
-        "mean_sq": pd.Series(step * step, index=steps.index).groupby(steps["animal_id"].astype(str)).mean(),
-        "cos": np.cos(steps["turn_rad"]).groupby(steps["animal_id"].astype(str)).mean(),
-    }).reindex(index)
-    out["n_steps"] = stats["n"].fillna(0).astype(np.int64).to_numpy()
-    out["n_zero_steps"] = stats["zero"].fillna(0).astype(np.int64).to_numpy()
-    out["path_m"] = stats["path"].fillna(0.0).to_numpy()
+    cos_turn = np.cos(steps["turn_rad"].to_numpy(float))
+    has_turn = np.isfinite(cos_turn)
+    n_steps = np.bincount(code, minlength=ids.size)
+    n_turns = np.bincount(code[has_turn], minlength=ids.size)
+    path = np.bincount(code, weights=step, minlength=ids.size)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        mean = path / n_steps
+        mean_sq = np.bincount(code, weights=step * step, minlength=ids.size) / n_steps
+        mean_cos = np.bincount(code[has_turn], weights=cos_turn[has_turn], minlength=ids.size) / n_turns
+    out["n_steps"] = n_steps
+    out["n_zero_steps"] = np.bincount(code[step == 0], minlength=ids.size)
+    out["path_m"] = path
 
-    net, chord = _net_and_gaps(track, index)
+    net, chord = _net_and_gaps(track, ids)
     out["net_m"] = net
-    denominator = out["path_m"].to_numpy() + chord
+    denominator = path + chord
     with np.errstate(divide="ignore", invalid="ignore"):
         out["straightness"] = np.where(denominator > 0, net / denominator, np.nan)
-    out["sinuosity"] = _sinuosity(stats["mean"].to_numpy(float), stats["mean_sq"].to_numpy(float), stats["cos"].to_numpy(float))
-    return out.reset_index()[SUMMARY_COLUMNS]
+    out["sinuosity"] = _sinuosity(mean, mean_sq, mean_cos)
+    return out[SUMMARY_COLUMNS]
 
 
-def _net_and_gaps(track: pd.DataFrame, index: pd.Index):
+def _codes_in(animal_id: pd.Series, ids: np.ndarray) -> np.ndarray:
+    """Position of each row's animal in ``ids``; -1 for an animal not in it, or a missing id."""
+    codes, uniques = pd.factorize(animal_id)
+    where = pd.Index(ids).get_indexer(pd.Index(uniques).astype(str))
+    return np.where(codes >= 0, where[codes] if where.size else -1, -1).astype(np.int64)
+
+
+def _count_by(animal_id: pd.Series, ids: np.ndarray) -> np.ndarray:
+    codes = _codes_in(animal_id, ids)
+    return np.bincount(codes[codes >= 0], minlength=ids.size)
+
+
+def _net_and_gaps(track: pd.DataFrame, ids: np.ndarray):
     """Net displacement (first to last analysed fix) and total distance across segment gaps, per animal."""
-    ids = track["animal_id"].astype(str)
-    codes, starts = _animal_blocks(ids)
+    codes = _codes_in(track["animal_id"], ids)
+    starts = np.flatnonzero(np.r_[True, codes[1:] != codes[:-1]]) if len(track) else np.array([], dtype=int)
     ends = np.r_[starts[1:] - 1, len(track) - 1] if len(track) else starts
     lat = track["lat"].to_numpy(float)
     lon = track["lon"].to_numpy(float)
     seg = track["segment"].to_numpy()
-    net = pd.Series(geodesic_inverse(lat[starts], lon[starts], lat[ends], lon[ends])[0], index=ids.to_numpy()[starts])
+    net = np.full(ids.size, np.nan)
+    net[codes[starts]] = geodesic_inverse(lat[starts], lon[starts], lat[ends], lon[ends])[0]
     jump = np.flatnonzero((codes[1:] == codes[:-1]) & (seg[1:] != seg[:-1]))
     gap_m = geodesic_inverse(lat[jump], lon[jump], lat[jump + 1], lon[jump + 1])[0]
-    chord = pd.Series(gap_m).groupby(ids.to_numpy()[jump]).sum()
-    return net.reindex(index).to_numpy(float), chord.reindex(index, fill_value=0.0).to_numpy(float)
+    return net, np.bincount(codes[jump], weights=gap_m, minlength=ids.size)
 
 
 def _sinuosity(p: np.ndarray, mean_sq: np.ndarray, c: np.ndarray) -> np.ndarray:
