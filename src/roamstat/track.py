@@ -453,7 +453,7 @@ def compute_steps(fixes: pd.DataFrame) -> pd.DataFrame:
         "heading_rad": depart,
         "turn_rad": turn,
         "speed_m_s": speed,
-    })
+    }, columns=STEP_COLUMNS)
 
 
 # --------------------------------------------------------------------------- summary
