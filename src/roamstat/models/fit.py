@@ -43,8 +43,13 @@ truncated power law has the lowest AIC in the tail set AND the power law
 beats both the left-truncated exponential and the left-truncated lognormal by
 Vuong's test (negative statistic on their rows with p < 0.1, the threshold of
 Clauset et al. 2009, §5).  The lognormal in particular mimics a power law over
-a limited range, so a lowest AIC alone is not evidence of a Lévy walk.  Such a
-verdict supports, not replaces, expert judgement of the movement data.
+a limited range, so a lowest AIC alone is not evidence of a Lévy walk.  The
+rule is deliberately strict: in simulations (tests/test_models_recovery.py) it
+made no claim for exponential or lognormal data, but it also rarely supports a
+genuine power law unless the tail spans several decades of step length, because
+the left-truncated lognormal can follow a power law closely.  A False value
+therefore means "not shown", not "absent".  Such a verdict supports, not
+replaces, expert judgement of the movement data.
 
 References
 ----------

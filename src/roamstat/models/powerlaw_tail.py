@@ -7,10 +7,12 @@ Kolmogorov-Smirnov distance between the tail data and the fitted law
 (Clauset et al. 2009, §3.3, eq. 3.9).
 
 Candidate xmin values: the distinct observed values in the lower 90 % of the
-sorted data that leave at least ``MIN_TAIL`` observations in the tail.  When
-there are more than ``MAX_CANDIDATES`` of them, an evenly spaced subset (by
-rank, i.e. quantiles) is scanned, so the cost stays about
-``MAX_CANDIDATES * n`` however long the track.  The scan is vectorised.
+sorted data that leave at least ``MIN_TAIL`` observations in the tail.  All
+of them are scanned while candidates x observations stays below
+``SCAN_CELLS`` (every candidate for tracks up to about 2,000 steps); beyond
+that an evenly spaced subset by rank (quantiles) of
+max(``MIN_CANDIDATES``, SCAN_CELLS / n) candidates is scanned, so the cost
+stays bounded however long the track.  The scan is vectorised.
 
 Truncated power law, xmin <= x <= xmax:  p(x) = x^(-alpha) / Z(alpha) with
 Z = (xmax^(1-alpha) - xmin^(1-alpha)) / (1 - alpha)  (ln(xmax/xmin) at
@@ -40,7 +42,8 @@ from roamstat.models.base import StepModel, plain_params
 
 MIN_TAIL = 10  # fewest tail observations for an exponent worth reporting (common practice, no source)
 XMIN_QUANTILE = 0.9  # xmin candidates come from the lower 90 % of the data
-MAX_CANDIDATES = 300
+SCAN_CELLS = 4_000_000
+MIN_CANDIDATES = 300
 _CHUNK_CELLS = 2_000_000  # candidates x observations evaluated at once (memory bound ~16 MB)
 ALPHA_BOUNDS = (-20.0, 20.0)  # search interval for the truncated law's exponent
 
@@ -207,8 +210,9 @@ def scan_xmin(x_sorted: np.ndarray) -> float | None:
     first = first[keep]
     if first.size == 0:
         return None
-    if first.size > MAX_CANDIDATES:
-        first = first[np.unique(np.linspace(0, first.size - 1, MAX_CANDIDATES).round().astype(int))]
+    cap = max(MIN_CANDIDATES, SCAN_CELLS // n)
+    if first.size > cap:
+        first = first[np.unique(np.linspace(0, first.size - 1, cap).round().astype(int))]
     suffix = np.concatenate([np.cumsum(lnx[::-1])[::-1], [0.0]])  # suffix[i] = sum_{j>=i} ln x_j
     m = n - first
     alpha = 1.0 + m / (suffix[first] - m * lnx[first])

@@ -10,8 +10,9 @@ Full-range fits use scipy's own MLE (``dist.fit(x, floc=0)``).  Truncated
 fits (exponential and lognormal only, the alternatives Clauset et al. test the
 power law against): the exponential has the closed form rate = 1 / (mean - xmin)
 (memorylessness); the lognormal maximises the truncated-normal likelihood of
-ln x numerically (Nelder-Mead on meanlog and ln sdlog, from its sufficient
-statistics, started at the untruncated estimate).
+ln x numerically (bounded Nelder-Mead on meanlog and ln sdlog, from its
+sufficient statistics, started at the untruncated estimate; sdlog is capped at
+``LOGNORMAL_TAIL_MAX_SDLOG``, see there).
 
 References
 ----------
@@ -32,6 +33,13 @@ import numpy as np
 from scipy import optimize, special, stats
 
 from roamstat.models.base import StepModel, plain_params
+
+
+# A left-truncated lognormal approaches a power law as meanlog -> -inf with sdlog growing
+# (Clauset et al. 2009, §5); on power-law-like data its likelihood has no finite maximum.
+# Capping sdlog keeps the fit finite; at the cap the lognormal is, over any realistic range of
+# step lengths, a power law with a slight bend, so a Vuong comparison is rightly inconclusive.
+LOGNORMAL_TAIL_MAX_SDLOG = 10.0
 
 
 @dataclass(frozen=True)
@@ -116,8 +124,10 @@ def _lognorm_fit_tail(x, xmin):
         mu, s = v[0], math.exp(v[1])
         return math.log(s) + (l2 - 2.0 * mu * l1 + mu * mu) / (2.0 * s * s) + special.log_ndtr((mu - a) / s)
 
-    start = [l1, math.log(max(float(np.std(lx)), 1e-6))]
-    res = optimize.minimize(nll, start, method="Nelder-Mead",
+    log_s_max = math.log(LOGNORMAL_TAIL_MAX_SDLOG)
+    start = [l1, min(math.log(max(float(np.std(lx)), 1e-6)), log_s_max)]
+    bounds = [(a - 50.0 * LOGNORMAL_TAIL_MAX_SDLOG**2, None), (math.log(1e-6), log_s_max)]
+    res = optimize.minimize(nll, start, method="Nelder-Mead", bounds=bounds,
                             options={"xatol": 1e-10, "fatol": 1e-13, "maxiter": 4000})
     return plain_params(meanlog=res.x[0], sdlog=math.exp(res.x[1]))
 
@@ -178,8 +188,9 @@ class ScipyStepModel(StepModel):
         x = np.asarray(x, dtype=float)
         if self.xmin <= 0:
             return self._call("cdf", x)
-        s_min = self._call("sf", self.xmin)
-        return np.clip(1.0 - self._call("sf", np.maximum(x, self.xmin)) / s_min, 0.0, 1.0)
+        # 1 - S(x) / S(xmin) in log form: S(xmin) may be below the smallest float
+        log_ratio = self._call("logsf", np.maximum(x, self.xmin)) - self._log_sf_min()
+        return np.clip(-np.expm1(log_ratio), 0.0, 1.0)
 
     def sample(self, n, rng):
         shapes, scale = self.family.args(self.params)

@@ -1,0 +1,69 @@
+"""Turning-angle families against scipy.stats and directional-statistics identities."""
+
+import math
+
+import numpy as np
+import pytest
+from scipy import integrate, special, stats
+
+from roamstat.models.base import wrap_angle
+from roamstat.models.turns import fit_uniform, fit_von_mises, fit_wrapped_cauchy
+
+
+@pytest.fixture(scope="module")
+def vm_turns():
+    return wrap_angle(np.random.default_rng(21).vonmises(2.8, 1.2, 800))  # mean near +pi on purpose
+
+
+@pytest.fixture(scope="module")
+def wc_turns():
+    rng = np.random.default_rng(22)
+    # wrapped Cauchy draws via scipy.stats.wrapcauchy (support [0, 2 pi)), shifted by mu = -0.4
+    return wrap_angle(stats.wrapcauchy.rvs(0.6, size=800, random_state=rng) - 0.4)
+
+
+def test_von_mises_matches_scipy_and_the_resultant_length(vm_turns):
+    model = fit_von_mises(vm_turns)
+    kappa, loc, _ = stats.vonmises.fit(vm_turns, fscale=1)  # reference: scipy.stats.vonmises.fit
+    assert model.params["kappa"] == pytest.approx(kappa, rel=1e-9)
+    assert math.cos(model.params["mu"] - loc) == pytest.approx(1.0)
+    # Mardia & Jupp (2000), §5.3: mu is the circular mean, A(kappa) = mean resultant length
+    resultant = np.mean(np.exp(1j * vm_turns))
+    assert model.params["mu"] == pytest.approx(np.angle(resultant), abs=1e-9)
+    a = special.i1(model.params["kappa"]) / special.i0(model.params["kappa"])
+    assert a == pytest.approx(abs(resultant), rel=1e-6)
+    assert model.mean_cos() == pytest.approx(a * math.cos(model.params["mu"]))
+    assert model.loglik == pytest.approx(np.sum(stats.vonmises.logpdf(vm_turns, kappa, loc=loc)), rel=1e-10)
+    assert -math.pi < model.params["mu"] <= math.pi
+
+
+def test_wrapped_cauchy_matches_scipy(wc_turns):
+    model = fit_wrapped_cauchy(wc_turns)
+    mu, rho = model.params["mu"], model.params["rho"]
+    shifted = np.mod(wc_turns - mu, 2 * math.pi)
+    # reference: scipy.stats.wrapcauchy.fit for rho at our mu (loc and scale fixed)
+    c_ref, _, _ = stats.wrapcauchy.fit(shifted, floc=0, fscale=1)
+    assert rho == pytest.approx(c_ref, abs=1e-4)
+    assert model.loglik == pytest.approx(np.sum(stats.wrapcauchy.logpdf(shifted, rho)), rel=1e-10)
+    # a maximum over mu too: scipy's likelihood is lower a little to either side
+    for d in (-0.01, 0.01):
+        assert np.sum(stats.wrapcauchy.logpdf(np.mod(wc_turns - mu - d, 2 * math.pi), rho)) < model.loglik
+    # generating parameters recovered (simulation of known parameters)
+    assert mu == pytest.approx(-0.4, abs=0.08) and rho == pytest.approx(0.6, abs=0.05)
+
+
+@pytest.mark.parametrize("fit", [fit_uniform, fit_von_mises, fit_wrapped_cauchy])
+def test_density_cdf_moments_and_samples_agree(vm_turns, fit):
+    model = fit(vm_turns)
+    dens = lambda t: math.exp(model.logpdf(np.array([t]))[0])  # noqa: E731
+    # reference: scipy.integrate.quad over (-pi, pi]
+    assert integrate.quad(dens, -math.pi, math.pi, limit=200)[0] == pytest.approx(1.0, abs=1e-7)
+    assert model.mean_cos() == pytest.approx(integrate.quad(lambda t: math.cos(t) * dens(t), -math.pi, math.pi, limit=200)[0], abs=1e-7)
+    assert model.mean_sin() == pytest.approx(integrate.quad(lambda t: math.sin(t) * dens(t), -math.pi, math.pi, limit=200)[0], abs=1e-7)
+    for t in (-2.0, 0.3, 3.0):
+        assert float(model.cdf(np.array([t]))[0]) == pytest.approx(integrate.quad(dens, -math.pi, t, limit=200)[0], abs=1e-7)
+    assert float(model.cdf(np.array([math.pi]))[0]) == 1.0
+    draws = model.sample(4000, np.random.default_rng(1))
+    assert np.all((draws > -math.pi) & (draws <= math.pi))
+    assert stats.kstest(draws, model.cdf).pvalue > 0.01  # scipy.stats.kstest, fixed seed
+    assert np.mean(np.cos(draws)) == pytest.approx(model.mean_cos(), abs=0.05)
