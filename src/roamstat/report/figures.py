@@ -1,0 +1,283 @@
+"""The report's figures: one function per figure, plain numbers in, PNG bytes out.
+
+Figures are drawn on :class:`matplotlib.figure.Figure` objects with the Agg
+canvas, never through pyplot, so no figure is kept in a global registry and
+memory stays flat however many animals are drawn.  No function puts an animal
+id into a figure: headings live in the HTML, where they are escaped.
+"""
+
+from __future__ import annotations
+
+import io
+
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from matplotlib.patches import PathPatch
+from matplotlib.path import Path as MplPath
+
+DPI = 90
+WIDE = (8.0, 3.3)
+NORMAL = (5.0, 3.6)
+SQUARE = (4.2, 4.2)
+START_COLOUR, END_COLOUR, TRACK_COLOUR, GREY = "#1a7f37", "#c62828", "#1f5fa8", "#9e9e9e"
+
+
+def _new(size, **kwargs):
+    fig = Figure(figsize=size, dpi=DPI, layout="constrained")
+    FigureCanvasAgg(fig)
+    return fig, fig.subplots(**kwargs)
+
+
+def _png(fig) -> bytes:
+    buffer = io.BytesIO()
+    fig.savefig(buffer, format="png", dpi=DPI, metadata={"Software": None})
+    fig.clear()
+    return buffer.getvalue()
+
+
+def distance_scale(values) -> tuple[float, str]:
+    """Divisor and unit for planar coordinates: km once the extent passes 5 km."""
+    values = np.asarray(values, dtype=float)
+    values = values[np.isfinite(values)]
+    span = float(values.max() - values.min()) if values.size else 0.0
+    return (1000.0, "km") if span > 5000.0 else (1.0, "m")
+
+
+def area_scale(values_m2) -> tuple[float, str]:
+    """Divisor and unit for squared distances: km² once values pass 1 km²."""
+    values = np.asarray(values_m2, dtype=float)
+    values = values[np.isfinite(values)]
+    top = float(np.abs(values).max()) if values.size else 0.0
+    return (1e6, "km²") if top > 1e6 else (1.0, "m²")
+
+
+def _coordinate_labels(ax, unit: str, masked: bool) -> None:
+    suffix = f" ({unit}, masked: relative to a hidden origin)" if masked else f" ({unit})"
+    ax.set_xlabel("east" + suffix, fontsize=8)
+    ax.set_ylabel("north" + suffix, fontsize=8)
+    ax.set_aspect("equal", adjustable="datalim")
+    ax.tick_params(labelsize=8)
+
+
+def track_map(x_m, y_m, rejected_x_m=None, rejected_y_m=None, masked: bool = False) -> bytes:
+    """Track in planar metres, start and end marked, rejected fixes faint.
+
+    Parameters
+    ----------
+    x_m, y_m : array-like
+        Kept fixes in time order (metres, the animal's planar frame).
+    rejected_x_m, rejected_y_m : array-like, optional
+        Rejected fixes that had valid coordinates, in the same frame.
+    masked : bool
+        Label the axes as masked coordinates.
+    """
+    x, y = np.asarray(x_m, float), np.asarray(y_m, float)
+    rx = np.asarray([] if rejected_x_m is None else rejected_x_m, float)
+    ry = np.asarray([] if rejected_y_m is None else rejected_y_m, float)
+    scale, unit = distance_scale(np.concatenate([x, y, rx, ry]))
+    fig, ax = _new(NORMAL)
+    if rx.size:
+        ax.scatter(rx / scale, ry / scale, s=16, marker="x", color="#7a7a7a", alpha=0.6, linewidths=0.9,
+                   label=f"rejected ({rx.size})")
+    ax.plot(x / scale, y / scale, color=TRACK_COLOUR, linewidth=0.8, alpha=0.8)
+    ax.scatter(x / scale, y / scale, s=4, color=TRACK_COLOUR, label=f"kept fixes ({x.size})")
+    if x.size:
+        ax.scatter([x[0] / scale], [y[0] / scale], s=60, marker="^", color=START_COLOUR, zorder=5, label="start")
+        ax.scatter([x[-1] / scale], [y[-1] / scale], s=50, marker="s", color=END_COLOUR, zorder=5, label="end")
+    _coordinate_labels(ax, unit, masked)
+    ax.legend(fontsize=7, loc="best")
+    return _png(fig)
+
+
+def step_histogram(step_m, curves, log_axes: bool) -> bytes:
+    """Histogram of step lengths as a density, with fitted densities on top.
+
+    Parameters
+    ----------
+    step_m : array-like
+        Step lengths used by the fits (metres, > 0).
+    curves : list of (label, x, density)
+        Fitted densities evaluated on a grid; ``density`` is per metre of the
+        whole sample (a tail law is scaled by the fraction of steps it covers).
+    log_axes : bool
+        Log-spaced bins and log axes, for heavy-tailed samples.
+    """
+    steps = np.asarray(step_m, float)
+    steps = steps[np.isfinite(steps) & (steps > 0)]
+    fig, ax = _new(NORMAL)
+    lowest = None
+    if steps.size:
+        if log_axes:
+            bins = np.geomspace(steps.min(), steps.max() * 1.0001, 30)
+        else:
+            bins = np.linspace(0.0, steps.max() * 1.0001, 30)
+        heights, _, _ = ax.hist(steps, bins=bins, density=True, color="#cfd8e3", edgecolor="#8ea2bb",
+                                label=f"observed ({steps.size})")
+        lowest = heights[heights > 0].min()
+    for label, x, density in curves:
+        density = np.asarray(density, float)
+        shown = np.isfinite(density) & (density > 0)
+        ax.plot(np.asarray(x, float)[shown], density[shown], linewidth=1.6, label=str(label))
+    if log_axes:
+        ax.set_xscale("log")
+        ax.set_yscale("log")
+        if lowest is not None:
+            # A light-tailed density falls to 1e-15 in the tail; the axis follows the data instead.
+            ax.set_ylim(bottom=lowest / 5.0)
+    ax.set_xlabel("step length (m)" + (", log scale" if log_axes else ""), fontsize=8)
+    ax.set_ylabel("density (per m)", fontsize=8)
+    ax.tick_params(labelsize=8)
+    ax.legend(fontsize=7)
+    return _png(fig)
+
+
+def turn_rose(turn_rad, curves) -> bytes:
+    """Rose (polar histogram) of turning angles with fitted densities.
+
+    Straight ahead points up; right (clockwise, positive) turns to the right,
+    the data contract's sign convention.
+
+    Parameters
+    ----------
+    turn_rad : array-like
+        Turning angles in (-pi, pi].
+    curves : list of (label, theta, density)
+        Fitted densities (per radian) on a grid of angles.
+    """
+    turns = np.asarray(turn_rad, float)
+    turns = turns[np.isfinite(turns)]
+    fig, ax = _new(SQUARE, subplot_kw={"projection": "polar"})
+    ax.set_theta_zero_location("N")
+    ax.set_theta_direction(-1)
+    edges = np.linspace(-np.pi, np.pi, 25)
+    if turns.size:
+        counts, _ = np.histogram(turns, bins=edges)
+        density = counts / (turns.size * np.diff(edges))
+        ax.bar(edges[:-1], density, width=np.diff(edges), align="edge", color="#cfd8e3", edgecolor="#8ea2bb",
+               label=f"observed ({turns.size})")
+    for label, theta, density in curves:
+        ax.plot(np.asarray(theta, float), np.asarray(density, float), linewidth=1.6, label=str(label))
+    ax.tick_params(labelsize=7)
+    ax.set_xticks(np.deg2rad([0, 90, 180, 270]), ["ahead", "right", "back", "left"])
+    fig.legend(fontsize=7, loc="outside lower center", ncols=2)
+    return _png(fig)
+
+
+def nsd_envelopes(panels, x_label: str) -> bytes:
+    """Observed net squared displacement against each null model's envelope.
+
+    Parameters
+    ----------
+    panels : list of dict
+        One per null model: ``name``, ``x``, ``observed``, and optionally
+        ``lo``, ``hi`` (pointwise envelope) and ``mean`` — all NSD in m².
+    x_label : str
+        What ``x`` is (step index or elapsed time, with its unit).
+    """
+    every = np.concatenate([np.asarray(p[k], float).ravel() for p in panels
+                            for k in ("observed", "lo", "hi", "mean") if p.get(k) is not None])
+    scale, unit = area_scale(every)
+    fig, axes = _new(WIDE, ncols=len(panels), sharey=True, squeeze=False)
+    for ax, panel in zip(axes[0], panels):
+        x = np.asarray(panel["x"], float)
+        if panel.get("lo") is not None and panel.get("hi") is not None:
+            ax.fill_between(x, np.asarray(panel["lo"], float) / scale, np.asarray(panel["hi"], float) / scale,
+                            color="#d9d9d9", label="null envelope")
+        if panel.get("mean") is not None:
+            ax.plot(x, np.asarray(panel["mean"], float) / scale, color="#555555", linestyle="--", linewidth=1,
+                    label="null mean")
+        ax.plot(x, np.asarray(panel["observed"], float) / scale, color="black", linewidth=1.3, label="observed")
+        ax.set_title(str(panel["name"]), fontsize=9)
+        ax.set_xlabel(x_label, fontsize=8)
+        ax.tick_params(labelsize=7)
+    axes[0][0].set_ylabel(f"net squared displacement ({unit})", fontsize=8)
+    axes[0][0].legend(fontsize=7, loc="upper left")
+    return _png(fig)
+
+
+def residency_fit(t, observed, fitted, y_label: str, t_label: str) -> bytes:
+    """Observed NSD through time with the fitted residency models.
+
+    Parameters
+    ----------
+    t : array-like
+        Times (datetimes or numbers) of the observations.
+    observed : array-like
+        Observed NSD in the unit named by ``y_label``.
+    fitted : list of (label, t, values, chosen)
+        Fitted curves; the chosen model is drawn bold.
+    """
+    fig, ax = _new(NORMAL)
+    ax.scatter(t, np.asarray(observed, float), s=5, color=GREY, label="observed")
+    for label, tt, values, chosen in fitted:
+        ax.plot(tt, np.asarray(values, float), linewidth=2.2 if chosen else 1.0,
+                alpha=1.0 if chosen else 0.7, label=f"{label} (chosen)" if chosen else str(label))
+    ax.set_xlabel(t_label, fontsize=8)
+    ax.set_ylabel(y_label, fontsize=8)
+    ax.tick_params(labelsize=7)
+    for tick in ax.get_xticklabels():
+        tick.set_rotation(20)
+    ax.legend(fontsize=7)
+    return _png(fig)
+
+
+def range_contours(x_m, y_m, contours, masked: bool = False) -> bytes:
+    """Home-range outlines over the fixes.
+
+    Parameters
+    ----------
+    x_m, y_m : array-like
+        The fixes (metres), drawn faintly.
+    contours : list of (label, rings)
+        ``rings`` is a list of (N, 2) coordinate arrays in metres, exteriors
+        counter-clockwise and holes clockwise, so the non-zero fill rule
+        leaves holes empty.
+    masked : bool
+        Label the axes as masked coordinates.
+    """
+    x, y = np.asarray(x_m, float), np.asarray(y_m, float)
+    ring_values = [np.asarray(r, float) for _, rings in contours for r in rings]
+    every = np.concatenate([x, y] + [r.ravel() for r in ring_values]) if ring_values else np.concatenate([x, y])
+    scale, unit = distance_scale(every)
+    fig, ax = _new(NORMAL)
+    ax.scatter(x / scale, y / scale, s=3, color=GREY, alpha=0.5, label="fixes")
+    colours = ["#1f5fa8", "#e07b00", "#6a3d9a", "#1a7f37", "#c62828", "#00838f"]
+    for i, (label, rings) in enumerate(contours):
+        if not rings:
+            continue
+        colour = colours[i % len(colours)]
+        vertices, codes = [], []
+        for ring in rings:
+            ring = np.asarray(ring, float) / scale
+            vertices.extend(ring.tolist())
+            codes.extend([MplPath.MOVETO] + [MplPath.LINETO] * (len(ring) - 2) + [MplPath.CLOSEPOLY])
+        patch = PathPatch(MplPath(vertices, codes), facecolor=colour, edgecolor=colour, alpha=0.18, label=None)
+        ax.add_patch(patch)
+        outline = PathPatch(MplPath(vertices, codes), facecolor="none", edgecolor=colour, linewidth=1.4,
+                            label=str(label))
+        ax.add_patch(outline)
+    ax.autoscale_view()
+    _coordinate_labels(ax, unit, masked)
+    ax.legend(fontsize=7, loc="best")
+    return _png(fig)
+
+
+def area_curve(series) -> bytes:
+    """Range area against the number of fixes used (Harris et al. 1990).
+
+    Parameters
+    ----------
+    series : list of (label, n_fixes, area_km2)
+        One line per estimator and level.
+    """
+    fig, ax = _new(NORMAL)
+    for label, n, area in series:
+        ax.plot(np.asarray(n, float), np.asarray(area, float), marker="o", markersize=3, linewidth=1.2,
+                label=str(label))
+    ax.set_xlabel("fixes used", fontsize=8)
+    ax.set_ylabel("area (km²)", fontsize=8)
+    ax.set_ylim(bottom=0)
+    ax.tick_params(labelsize=7)
+    ax.legend(fontsize=7)
+    return _png(fig)

@@ -1,0 +1,155 @@
+"""HTML building blocks for report.html: escaping, tables, the page shell.
+
+Every string that comes from data (animal ids, file names, notes, column
+names and values, the command line) goes through :func:`esc`.  The page loads
+nothing from the network: the style sheet is inline, and a Content Security
+Policy forbids scripts and remote resources, so even a string that escaped
+escaping could not run.
+"""
+
+from __future__ import annotations
+
+import html
+import math
+from datetime import date, datetime
+
+import numpy as np
+import pandas as pd
+
+ID_SHOWN_CHARS = 120  # longer ids are shortened in headings and tables, shown in full on demand
+
+CSP = "default-src 'none'; img-src 'self' data:; style-src 'unsafe-inline'"
+
+CSS = """
+*{box-sizing:border-box}
+body{margin:0;font-family:system-ui,-apple-system,"Segoe UI",Roboto,"Helvetica Neue",Arial,sans-serif;
+ line-height:1.45;color:#1b1f24;background:#fff;font-size:16px}
+main{max-width:1100px;margin:0 auto;padding:1rem}
+h1{font-size:1.6rem;margin:.4rem 0}
+h2{font-size:1.3rem;border-bottom:2px solid #dde3ea;padding-bottom:.2rem;margin-top:2.2rem}
+h3{font-size:1.1rem;margin-top:1.8rem;overflow-wrap:anywhere}
+p,li{max-width:75ch}
+.scroll{overflow-x:auto;-webkit-overflow-scrolling:touch;margin:.4rem 0 1rem;max-width:100%}
+table{border-collapse:collapse;font-size:.85rem}
+th,td{border:1px solid #d0d7de;padding:.25rem .5rem;text-align:left;vertical-align:top;white-space:nowrap}
+th{background:#f3f6f9;font-weight:600}
+td.num{text-align:right;font-variant-numeric:tabular-nums}
+td.text{white-space:normal;min-width:12ch;max-width:48ch;overflow-wrap:anywhere}
+.figures{display:grid;grid-template-columns:repeat(auto-fill,minmax(min(100%,440px),1fr));gap:1rem;margin:1rem 0}
+figure{margin:0}
+figure.wide{grid-column:1/-1}
+figure.wide img{max-width:820px}
+img{width:100%;height:auto;display:block;border:1px solid #eceff3}
+figcaption{font-size:.82rem;color:#4d5661;margin-top:.2rem}
+.note{background:#fff8e1;border-left:4px solid #e0a800;padding:.5rem .8rem;margin:.6rem 0}
+.caution{background:#fdecea;border-left:4px solid #c62828;padding:.5rem .8rem;margin:.6rem 0}
+.meta{font-size:.9rem;color:#3d4650}
+code{font-size:.85em;overflow-wrap:anywhere}
+.v-farther{background:#fde2e1}.v-closer{background:#dff3e4}.v-consistent{background:#f1f3f5}
+.v-insufficient{background:#fff4d6}
+nav ul{columns:16rem;padding-left:1.2rem}
+details{margin:.4rem 0}
+@media (max-width:600px){main{padding:.6rem}h1{font-size:1.35rem}table{font-size:.8rem}}
+@media print{
+ body{font-size:10.5pt}main{max-width:none;padding:0}
+ nav{display:none}.scroll{overflow:visible}
+ th,td{white-space:normal}
+ figure,tr,.note,.caution{break-inside:avoid}
+ section.animal{break-before:page}
+ .figures{grid-template-columns:1fr 1fr}
+ a{color:inherit;text-decoration:none}
+}
+"""
+
+_VERDICT_CLASS = {"farther": "v-farther", "closer": "v-closer", "consistent": "v-consistent",
+                  "insufficient": "v-insufficient"}
+
+
+def esc(value) -> str:
+    """HTML-escape any value's text (quotes included, safe inside attributes)."""
+    return html.escape(str(value), quote=True)
+
+
+def is_missing(value) -> bool:
+    if value is None or value is pd.NA or value is pd.NaT:
+        return True
+    return isinstance(value, float) and math.isnan(value)
+
+
+def fmt(value) -> str:
+    """Display text of one cell (not yet escaped): 4 significant digits, ISO times."""
+    if is_missing(value):
+        return "–"
+    if isinstance(value, (bool, np.bool_)):
+        return "yes" if value else "no"
+    if isinstance(value, (int, np.integer)):
+        return str(int(value))
+    if isinstance(value, (float, np.floating)):
+        value = float(value)
+        if not math.isfinite(value):
+            return str(value)
+        # Whole numbers for big values (12000.5 m reads better than 1.2e+04), 4 significant digits otherwise.
+        return f"{value:.0f}" if 1e4 <= abs(value) < 1e15 else f"{value:.4g}"
+    if isinstance(value, (pd.Timestamp, datetime, date)):
+        return value.isoformat()
+    return str(value)
+
+
+def short_id(animal_id: str) -> str:
+    """An id shortened for display (not escaped)."""
+    animal_id = str(animal_id)
+    if len(animal_id) <= ID_SHOWN_CHARS:
+        return animal_id
+    return f"{animal_id[:ID_SHOWN_CHARS]}… ({len(animal_id)} characters)"
+
+
+def cell(value, column: str = "") -> str:
+    text = fmt(value)
+    if isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, (bool, np.bool_)):
+        return f'<td class="num">{esc(text)}</td>'
+    classes = ["text"] if len(text) > 24 else []
+    if column.endswith("verdict") and text in _VERDICT_CLASS:
+        classes.append(_VERDICT_CLASS[text])
+    attr = f' class="{" ".join(classes)}"' if classes else ""
+    return f"<td{attr}>{esc(text)}</td>"
+
+
+def table(frame: pd.DataFrame, links: dict | None = None, link_column: str = "animal_id") -> str:
+    """A scrollable HTML table of ``frame``; ``links`` maps values of ``link_column`` to anchors."""
+    if frame is None or frame.empty:
+        return '<p class="meta">(no rows)</p>'
+    head = "".join(f'<th scope="col">{esc(c)}</th>' for c in frame.columns)
+    body = []
+    for row in frame.itertuples(index=False, name=None):
+        cells = []
+        for column, value in zip(frame.columns, row):
+            if links and column == link_column and str(value) in links:
+                cells.append(f'<td class="text"><a href="#{esc(links[str(value)])}">{esc(short_id(value))}</a></td>')
+            else:
+                cells.append(cell(value, str(column)))
+        body.append("<tr>" + "".join(cells) + "</tr>")
+    return f'<div class="scroll"><table><thead><tr>{head}</tr></thead><tbody>{"".join(body)}</tbody></table></div>'
+
+
+def key_values(pairs) -> str:
+    """A two-column table of (name, value) pairs."""
+    rows = "".join(f'<tr><th scope="row">{esc(k)}</th>{cell(v)}</tr>' for k, v in pairs)
+    return f'<div class="scroll"><table><tbody>{rows}</tbody></table></div>'
+
+
+def figure(src: str, caption: str, wide: bool = False) -> str:
+    """An image with its caption; ``wide`` spans the whole row of the figure grid."""
+    return (f'<figure{" class=\"wide\"" if wide else ""}><img src="{esc(src)}" alt="{esc(caption)}">'
+            f"<figcaption>{esc(caption)}</figcaption></figure>")
+
+
+def page(title: str, body: str) -> str:
+    """The whole document around ``body`` (already HTML)."""
+    return (
+        "<!DOCTYPE html>\n"
+        '<html lang="en"><head><meta charset="utf-8">'
+        f'<meta http-equiv="Content-Security-Policy" content="{CSP}">'
+        '<meta name="viewport" content="width=device-width, initial-scale=1">'
+        f"<title>{esc(title)}</title><style>{CSS}</style></head>"
+        f"<body><main>{body}</main></body></html>\n"
+    )

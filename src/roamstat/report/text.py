@@ -1,0 +1,97 @@
+"""Fixed prose of the report: methods, references, cautions (trusted HTML, no data in it)."""
+
+from __future__ import annotations
+
+METHODS = """
+<p>Fixes were screened by explicit rules, each rejected row keeping a reason code (table above).
+Kept fixes were projected per animal to a planar frame in metres centred on its first fix; step
+lengths and headings are geodesic on the WGS84 ellipsoid (Karney 2013), and turning angles are
+the change of heading between consecutive steps (positive = clockwise, a right turn).</p>
+<p>Step lengths were fitted by maximum likelihood with exponential, gamma, Weibull and lognormal
+families, and power-law and truncated power-law tails above a lower bound chosen by the
+Kolmogorov–Smirnov criterion, compared with the likelihood-ratio test of Vuong as set out by
+Clauset, Shalizi &amp; Newman (2009); turning angles with uniform, von Mises and wrapped Cauchy
+families. Models were ranked by AIC within each comparison set.</p>
+<p>Each animal's net displacement and its whole net-squared-displacement (NSD) curve were compared
+with null walks built from its own fitted statistics: a correlated random walk (Kareiva &amp;
+Shigesada 1983; Turchin 1998), a resampling null that shuffles the observed steps and turns, and a
+Lévy walk with the fitted power-law tail. Monte Carlo p-values, pointwise envelopes and a global
+extreme-rank envelope test (Myllymäki et al. 2017) give the evidence; q-values control the false
+discovery rate across the animals of the run for each null model (Benjamini &amp; Hochberg 1995).</p>
+<p>Residency patterns were classified by fitting the NSD-through-time models of Bunnefeld et al.
+(2011) and ranking them by AIC. First home-range estimates are minimum convex polygons (Mohr 1947)
+and fixed-kernel utilization distributions with the reference bandwidth (Worton 1989), with the
+area–sample-size curve (Harris et al. 1990) and Schoener's ratio as an autocorrelation diagnostic
+(Swihart &amp; Slade 1985). Fix-rate and positional-error considerations follow
+Bjørneraas et al. (2010); path tortuosity measures follow Benhamou (2004).</p>
+"""
+
+REFERENCES = [
+    "Benhamou, S. (2004). How to reliably estimate the tortuosity of an animal's path: straightness, "
+    "sinuosity, or fractal dimension? Journal of Theoretical Biology 229: 209–220.",
+    "Benjamini, Y. &amp; Hochberg, Y. (1995). Controlling the false discovery rate: a practical and powerful "
+    "approach to multiple testing. Journal of the Royal Statistical Society B 57: 289–300.",
+    "Bjørneraas, K., Van Moorter, B., Rolandsen, C. M. &amp; Herfindal, I. (2010). Screening Global Positioning "
+    "System location data for errors using animal movement characteristics. Journal of Wildlife Management 74: 1361–1366.",
+    "Bunnefeld, N., Börger, L., van Moorter, B., Rolandsen, C. M., Dettki, H., Solberg, E. J. &amp; Ericsson, G. "
+    "(2011). A model-driven approach to quantify migration patterns: individual, regional and yearly differences. "
+    "Journal of Animal Ecology 80: 466–476.",
+    "Clauset, A., Shalizi, C. R. &amp; Newman, M. E. J. (2009). Power-law distributions in empirical data. "
+    "SIAM Review 51: 661–703.",
+    "Harris, S., Cresswell, W. J., Forde, P. G., Trewhella, W. J., Woollard, T. &amp; Wray, S. (1990). "
+    "Home-range analysis using radio-tracking data: a review of problems and techniques particularly as applied "
+    "to the study of mammals. Mammal Review 20: 97–123.",
+    "Kareiva, P. M. &amp; Shigesada, N. (1983). Analyzing insect movement as a correlated random walk. "
+    "Oecologia 56: 234–238.",
+    "Karney, C. F. F. (2013). Algorithms for geodesics. Journal of Geodesy 87: 43–55.",
+    "Mohr, C. O. (1947). Table of equivalent populations of North American small mammals. "
+    "American Midland Naturalist 37: 223–249.",
+    "Myllymäki, M., Mrkvička, T., Grabarnik, P., Seijo, H. &amp; Hahn, U. (2017). Global envelope tests for "
+    "spatial processes. Journal of the Royal Statistical Society B 79: 381–404.",
+    "Swihart, R. K. &amp; Slade, N. A. (1985). Testing for independence of observations in animal movements. "
+    "Ecology 66: 1176–1184.",
+    "Turchin, P. (1998). Quantitative Analysis of Movement: Measuring and Modeling Population Redistribution "
+    "in Animals and Plants. Sinauer, Sunderland MA.",
+    "Worton, B. J. (1989). Kernel methods for estimating the utilization distribution in home-range studies. "
+    "Ecology 70: 164–168.",
+]
+
+CAUTIONS = """
+<div class="caution"><p><strong>Statistical verdicts support, and never replace, the judgement of
+biologists who know the species, the study area and the collars.</strong> A verdict of
+<em>farther</em> or <em>closer</em> says the animal is unusual under that null model only.</p></div>
+<ul>
+<li><strong>Model assumptions.</strong> The null walks assume independent, stationary steps and
+turns. Behavioural switching (resting, foraging, travelling), seasonal change or a change of fix
+schedule can make a track look more or less diffusive than any single random walk. Gaps are walked
+by the model at the nominal fix interval. Just above the minimum track length power is low:
+<em>consistent</em> is not evidence of random movement. Heavy tails can come from mixtures of
+behaviours or individuals, not only from a Lévy walk.</li>
+<li><strong>Multiple testing.</strong> q-values control the false discovery rate within this run;
+re-running many settings and reporting the one that “works” defeats that control.</li>
+<li><strong>Autocorrelation.</strong> Kernel density estimators assume independent fixes; frequent,
+autocorrelated fixes bias kernel areas low. Treat MCP and KDE areas as seeds of a home-range study,
+and an area–sample-size curve that has not levelled off as a sign the area is underestimated.</li>
+<li><strong>Fix-rate bias and habitat-driven GPS error.</strong> Collars miss fixes more often under
+dense canopy, in steep terrain and in dens or burrows; missing fixes are not random, so habitat use
+and range shape inherit the bias. Positional error grows with DOP and fewer satellites; screening
+thresholds are choices, recorded in manifest.json.</li>
+<li><strong>Projection.</strong> Step lengths and angles are geodesic. Planar coordinates are exact in
+distance from each animal's first fix and distorted slightly farther away (more for animals that
+travel thousands of kilometres); areas are computed in an equal-area frame.</li>
+<li><strong>Sensitive locations.</strong> Exact locations of sensitive species (nests, dens, roosts,
+leks, animals of commercial value) can enable poaching, persecution and disturbance. Share reports,
+tables and GeoJSON outside your team only with <code>--mask-locations</code>, and remember that a
+track's shape can still identify a place to someone who knows the area.</li>
+<li><strong>Permits and local rules.</strong> Defer to your permits, data-sharing agreements, animal-ethics
+approval, national and local regulations and licensed veterinary and wildlife-management practice.
+A statistical verdict is never on its own a reason to intervene with an animal.</li>
+</ul>
+"""
+
+MASKED_NOTE = ("Locations are masked: maps show coordinates relative to a hidden origin, and the "
+               "projection of each animal (which would reveal where it was) is not shown.")
+
+UNMASKED_NOTE = ("Locations are NOT masked: maps are in metres from each animal's first fix and the "
+                 "projections below reveal where the animals were. Run with --mask-locations before "
+                 "sharing this report outside your team if the species or site is sensitive.")
