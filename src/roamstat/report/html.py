@@ -139,7 +139,8 @@ def key_values(pairs) -> str:
 
 def figure(src: str, caption: str, wide: bool = False) -> str:
     """An image with its caption; ``wide`` spans the whole row of the figure grid."""
-    return (f'<figure{" class=\"wide\"" if wide else ""}><img src="{esc(src)}" alt="{esc(caption)}">'
+    attr = ' class="wide"' if wide else ""
+    return (f'<figure{attr}><img src="{esc(src)}" alt="{esc(caption)}">'
             f"<figcaption>{esc(caption)}</figcaption></figure>")
 
 
