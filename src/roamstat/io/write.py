@@ -21,6 +21,7 @@ import numpy as np
 import pandas as pd
 
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+_FORMULA_PATTERN = r"^[=+\-@\t\r]"
 
 
 def atomic_write(path: str | os.PathLike, data: str | bytes) -> Path:
@@ -47,26 +48,48 @@ def neutralise_text(value):
 
 
 def spreadsheet_safe(table: pd.DataFrame) -> pd.DataFrame:
-    """A copy of ``table`` whose text cells cannot act as formulas."""
+    """A copy of ``table`` whose text cells cannot act as formulas (vectorised)."""
     out = table.copy()
     for name in out.columns:
         column = out[name]
         if pd.api.types.is_numeric_dtype(column) or pd.api.types.is_datetime64_any_dtype(column):
             continue
-        out[name] = column.map(neutralise_text)
+        text = column.astype("string")
+        risky = text.str.match(_FORMULA_PATTERN, na=False).to_numpy(dtype=bool)
+        if risky.any():
+            column = column.astype(object)
+            column[risky] = "'" + text[risky].astype(str)
+            out[name] = column
     out.columns = [neutralise_text(str(c)) for c in out.columns]
     return out
 
 
 def format_times(table: pd.DataFrame) -> pd.DataFrame:
-    """ISO 8601 with offset for every timezone-aware datetime column."""
+    """ISO 8601 with offset (+00:00) for every timezone-aware datetime column.
+
+    Vectorised through numpy; sub-second digits are written only where a
+    column has them.
+    """
     out = table.copy()
     for name in out.columns:
-        if isinstance(out[name].dtype, pd.DatetimeTZDtype):
-            out[name] = out[name].dt.strftime("%Y-%m-%dT%H:%M:%S%z").str.replace(
-                r"([+-]\d\d)(\d\d)$", r"\1:\2", regex=True
-            )
+        column = out[name]
+        if not isinstance(column.dtype, pd.DatetimeTZDtype):
+            continue
+        utc = column.dt.tz_convert("UTC").dt.tz_localize(None).to_numpy()
+        unit = _time_unit(utc)
+        text = np.datetime_as_string(utc, unit=unit).astype(object)
+        missing = np.isnat(utc)
+        text[~missing] = text[~missing] + "+00:00"
+        text[missing] = ""
+        out[name] = text
     return out
+
+
+def _time_unit(values: np.ndarray) -> str:
+    finite = values[~np.isnat(values)].astype("datetime64[us]").astype(np.int64)
+    if finite.size == 0 or not (finite % 1_000_000).any():
+        return "s"
+    return "ms" if not (finite % 1000).any() else "us"
 
 
 def write_csv(table: pd.DataFrame, path: str | os.PathLike) -> Path:
