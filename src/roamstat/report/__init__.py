@@ -42,8 +42,8 @@ CAPTIONS = {
     "steps": "Step lengths (histogram, as a density) with the fitted densities; a tail law is scaled "
              "by the share of steps it describes.",
     "turns": "Turning angles (rose; ahead at the top, right turns to the right) with the fitted turn model.",
-    "nsd": "Observed net squared displacement against each null model: pointwise 95 % envelope (grey) "
-           "and null mean (dashed).",
+    "nsd": "Observed net squared displacement (NSD) against each null model: pointwise envelope of the "
+           "null walks (grey) and their mean (dashed).",
     "residency": "Residency: observed net squared displacement through time and the fitted NSD models.",
     "range": "Home-range outlines (MCP, KDE isopleths) over the fixes.",
     "area": "Area–sample-size curve: range area against the number of fixes used; an estimate that has "
@@ -222,7 +222,7 @@ def _animal_section(animal_id: str, name: str, result, tables: dict, written: li
     figs = []
     for kind, src in written:
         if src.startswith("figures/"):
-            figs.append(figure(src, CAPTIONS[kind], wide=kind == "nsd"))
+            figs.append(figure(src, CAPTIONS[kind]))
         else:
             figs.append(f'<p class="note">{esc(CAPTIONS[kind])} {esc(src)}</p>')
     if figs:

@@ -12,12 +12,12 @@ import io
 
 import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.dates import AutoDateLocator, ConciseDateFormatter
 from matplotlib.figure import Figure
 from matplotlib.patches import PathPatch
 from matplotlib.path import Path as MplPath
 
 DPI = 90
-WIDE = (8.0, 3.3)
 NORMAL = (5.0, 3.6)
 SQUARE = (4.2, 4.2)
 START_COLOUR, END_COLOUR, TRACK_COLOUR, GREY = "#1a7f37", "#c62828", "#1f5fa8", "#9e9e9e"
@@ -80,11 +80,13 @@ def track_map(x_m, y_m, rejected_x_m=None, rejected_y_m=None, masked: bool = Fal
     if rx.size:
         ax.scatter(rx / scale, ry / scale, s=16, marker="x", color="#7a7a7a", alpha=0.6, linewidths=0.9,
                    label=f"rejected ({rx.size})")
-    ax.plot(x / scale, y / scale, color=TRACK_COLOUR, linewidth=0.8, alpha=0.8)
-    ax.scatter(x / scale, y / scale, s=4, color=TRACK_COLOUR, label=f"kept fixes ({x.size})")
+    ax.plot(x / scale, y / scale, color=TRACK_COLOUR, linewidth=0.8 if x.size < 1000 else 0.5, alpha=0.8)
+    ax.scatter(x / scale, y / scale, s=4 if x.size < 1000 else 1, color=TRACK_COLOUR, label=f"kept fixes ({x.size})")
     if x.size:
-        ax.scatter([x[0] / scale], [y[0] / scale], s=60, marker="^", color=START_COLOUR, zorder=5, label="start")
-        ax.scatter([x[-1] / scale], [y[-1] / scale], s=50, marker="s", color=END_COLOUR, zorder=5, label="end")
+        ax.scatter([x[0] / scale], [y[0] / scale], s=90, marker="^", color=START_COLOUR, edgecolors="white",
+                   zorder=5, label="start")
+        ax.scatter([x[-1] / scale], [y[-1] / scale], s=75, marker="s", color=END_COLOUR, edgecolors="white",
+                   zorder=5, label="end")
     _coordinate_labels(ax, unit, masked)
     ax.legend(fontsize=7, loc="best")
     return _png(fig)
@@ -106,7 +108,7 @@ def step_histogram(step_m, curves, log_axes: bool) -> bytes:
     steps = np.asarray(step_m, float)
     steps = steps[np.isfinite(steps) & (steps > 0)]
     fig, ax = _new(NORMAL)
-    lowest = None
+    lowest = highest = None
     if steps.size:
         if log_axes:
             bins = np.geomspace(steps.min(), steps.max() * 1.0001, 30)
@@ -114,7 +116,7 @@ def step_histogram(step_m, curves, log_axes: bool) -> bytes:
             bins = np.linspace(0.0, steps.max() * 1.0001, 30)
         heights, _, _ = ax.hist(steps, bins=bins, density=True, color="#cfd8e3", edgecolor="#8ea2bb",
                                 label=f"observed ({steps.size})")
-        lowest = heights[heights > 0].min()
+        lowest, highest = heights[heights > 0].min(), heights.max()
     for label, x, density in curves:
         density = np.asarray(density, float)
         shown = np.isfinite(density) & (density > 0)
@@ -124,7 +126,7 @@ def step_histogram(step_m, curves, log_axes: bool) -> bytes:
         ax.set_yscale("log")
         if lowest is not None:
             # A light-tailed density falls to 1e-15 in the tail; the axis follows the data instead.
-            ax.set_ylim(bottom=lowest / 5.0)
+            ax.set_ylim(lowest / 5.0, highest * 3.0)
     ax.set_xlabel("step length (m)" + (", log scale" if log_axes else ""), fontsize=8)
     ax.set_ylabel("density (per m)", fontsize=8)
     ax.tick_params(labelsize=8)
@@ -178,8 +180,9 @@ def nsd_envelopes(panels, x_label: str) -> bytes:
     every = np.concatenate([np.asarray(p[k], float).ravel() for p in panels
                             for k in ("observed", "lo", "hi", "mean") if p.get(k) is not None])
     scale, unit = area_scale(every)
-    fig, axes = _new(WIDE, ncols=len(panels), sharey=True, squeeze=False)
-    for ax, panel in zip(axes[0], panels):
+    # Panels stacked (not side by side) so each stays legible on a phone-width screen.
+    fig, axes = _new((NORMAL[0], 0.9 + 2.1 * len(panels)), nrows=len(panels), sharex=True, squeeze=False)
+    for ax, panel in zip(axes[:, 0], panels):
         x = np.asarray(panel["x"], float)
         if panel.get("lo") is not None and panel.get("hi") is not None:
             ax.fill_between(x, np.asarray(panel["lo"], float) / scale, np.asarray(panel["hi"], float) / scale,
@@ -188,11 +191,11 @@ def nsd_envelopes(panels, x_label: str) -> bytes:
             ax.plot(x, np.asarray(panel["mean"], float) / scale, color="#555555", linestyle="--", linewidth=1,
                     label="null mean")
         ax.plot(x, np.asarray(panel["observed"], float) / scale, color="black", linewidth=1.3, label="observed")
-        ax.set_title(str(panel["name"]), fontsize=9)
-        ax.set_xlabel(x_label, fontsize=8)
+        ax.set_title(f"null model: {panel['name']}", fontsize=9)
+        ax.set_ylabel(f"NSD ({unit})", fontsize=8)
         ax.tick_params(labelsize=7)
-    axes[0][0].set_ylabel(f"net squared displacement ({unit})", fontsize=8)
-    axes[0][0].legend(fontsize=7, loc="upper left")
+    axes[-1, 0].set_xlabel(x_label, fontsize=8)
+    axes[0, 0].legend(fontsize=7, loc="upper left")
     return _png(fig)
 
 
@@ -216,8 +219,10 @@ def residency_fit(t, observed, fitted, y_label: str, t_label: str) -> bytes:
     ax.set_xlabel(t_label, fontsize=8)
     ax.set_ylabel(y_label, fontsize=8)
     ax.tick_params(labelsize=7)
-    for tick in ax.get_xticklabels():
-        tick.set_rotation(20)
+    if np.issubdtype(np.asarray(t).dtype, np.datetime64):
+        locator = AutoDateLocator(maxticks=6)
+        ax.xaxis.set_major_locator(locator)
+        ax.xaxis.set_major_formatter(ConciseDateFormatter(locator))
     ax.legend(fontsize=7)
     return _png(fig)
 

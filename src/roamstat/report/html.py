@@ -37,8 +37,6 @@ td.num{text-align:right;font-variant-numeric:tabular-nums}
 td.text{white-space:normal;min-width:12ch;max-width:48ch;overflow-wrap:anywhere}
 .figures{display:grid;grid-template-columns:repeat(auto-fill,minmax(min(100%,440px),1fr));gap:1rem;margin:1rem 0}
 figure{margin:0}
-figure.wide{grid-column:1/-1}
-figure.wide img{max-width:820px}
 img{width:100%;height:auto;display:block;border:1px solid #eceff3}
 figcaption{font-size:.82rem;color:#4d5661;margin-top:.2rem}
 .note{background:#fff8e1;border-left:4px solid #e0a800;padding:.5rem .8rem;margin:.6rem 0}
@@ -137,10 +135,9 @@ def key_values(pairs) -> str:
     return f'<div class="scroll"><table><tbody>{rows}</tbody></table></div>'
 
 
-def figure(src: str, caption: str, wide: bool = False) -> str:
-    """An image with its caption; ``wide`` spans the whole row of the figure grid."""
-    attr = ' class="wide"' if wide else ""
-    return (f'<figure{attr}><img src="{esc(src)}" alt="{esc(caption)}">'
+def figure(src: str, caption: str) -> str:
+    """An image with its caption."""
+    return (f'<figure><img src="{esc(src)}" alt="{esc(caption)}">'
             f"<figcaption>{esc(caption)}</figcaption></figure>")
 
 

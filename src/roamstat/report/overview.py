@@ -18,10 +18,11 @@ def _by_animal(frame: pd.DataFrame) -> pd.DataFrame:
 
 
 def animal_ids(tables: dict, animals) -> list[str]:
-    """Every animal named by any table or result, in sorted order."""
+    """Every analysed animal (kept fixes or results), in sorted order; rejected-only ids are in the quality table."""
     ids = {str(a.animal_id) for a in animals}
-    for table in tables.values():
-        if isinstance(table, pd.DataFrame) and "animal_id" in table.columns and table is not tables.get("rejected"):
+    for key in ("summary", "fixes", "fits", "null_tests", "residency", "ranges"):
+        table = tables.get(key)
+        if isinstance(table, pd.DataFrame) and "animal_id" in table.columns:
             ids.update(table["animal_id"].dropna().astype(str))
     return sorted(ids)
 
