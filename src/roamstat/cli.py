@@ -166,9 +166,11 @@ def _dispatch(args: argparse.Namespace, argv: list[str]) -> int:
 
 
 def closing_summary(result) -> str:
+    from roamstat.run import n_kept
+
     loaded = result.loaded
     lines = [
-        f"roamstat: {loaded.read.n_read} rows read, {len(loaded.fixes)} fixes kept, "
+        f"roamstat: {loaded.read.n_read} rows read, {n_kept(loaded.fixes)} fixes kept, "
         f"{len(loaded.rejected)} rejected (see rejected.csv); outputs in {result.out_dir}",
     ]
     null_tests = result.tables.get("null_tests")

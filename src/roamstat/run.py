@@ -135,19 +135,34 @@ def analyse_animal(task: AnimalTask) -> AnimalResult:
         result.fitted = fitted
         result.fits = _with_id(fitted.rows, aid)
         if "null" in task.stages:
-            rows, curves = compare.test_animal(task.fixes, task.steps, fitted, task.nominal_dt_s,
+            rows, curves = compare.test_animal(analysed_track(task.fixes), task.steps, fitted, task.nominal_dt_s,
                                                cfg, animal_rng(cfg.seed, aid, "null"))
             result.null_tests = _with_id(rows, aid)
             result.null_curves = curves
     if "ranges" in task.stages:
-        row, curve = ranges.residency_animal(task.fixes, cfg)
+        row, curve = ranges.residency_animal(analysed_track(task.fixes), cfg)
         result.residency = {"animal_id": aid, **row}
         result.residency_curve = curve
-        range_rows, features, extras = ranges.ranges_animal(task.fixes, cfg)
+        range_rows, features, extras = ranges.ranges_animal(observed_fixes(task.fixes), cfg)
         result.ranges = _with_id(pd.DataFrame(range_rows), aid)
         result.features = features
         result.range_extras = extras
     return result
+
+
+def analysed_track(fixes: pd.DataFrame) -> pd.DataFrame:
+    """The fixes the steps were computed on (the regular grid when resampling)."""
+    return fixes[fixes["on_grid"]].reset_index(drop=True) if "on_grid" in fixes else fixes
+
+
+def observed_fixes(fixes: pd.DataFrame) -> pd.DataFrame:
+    """Real fixes only (home ranges are estimated from observations, not interpolations)."""
+    return fixes[~fixes["interpolated"]].reset_index(drop=True) if "interpolated" in fixes else fixes
+
+
+def n_kept(fixes: pd.DataFrame) -> int:
+    """Input rows kept (interpolated grid rows are not input rows)."""
+    return int(len(observed_fixes(fixes)))
 
 
 def _with_id(rows: pd.DataFrame, animal_id: str) -> pd.DataFrame:
@@ -285,7 +300,7 @@ def run_info(loaded: Loaded, cfg: Config, argv) -> dict:
         "command_line": " ".join(argv or []),
         "seed": cfg.seed,
         "n_read": loaded.read.n_read,
-        "n_kept": int(len(loaded.fixes)),
+        "n_kept": n_kept(loaded.fixes),
         "n_rejected": int(len(loaded.rejected)),
         "projections": loaded.projections,
         "masked": cfg.mask_locations,
@@ -316,7 +331,7 @@ def build_manifest(command, loaded: Loaded, cfg: Config, argv, stages, duration_
         "inputs": [{k: f[k] for k in ("path", "size_bytes", "sha256", "encoding", "delimiter", "columns", "n_rows", "notes") if k in f}
                    for f in read.files],
         "time_zone_of_naive_times": read.tz_note,
-        "rows": {"read": read.n_read, "kept": int(len(loaded.fixes)), "rejected": int(len(loaded.rejected))},
+        "rows": {"read": read.n_read, "kept": n_kept(loaded.fixes), "rejected": int(len(loaded.rejected))},
         "rejected_by_reason": {str(k): int(v) for k, v in loaded.rejected["reason_code"].value_counts().sort_index().items()}
         if len(loaded.rejected) else {},
         "projections": loaded.projections,
