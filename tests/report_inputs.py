@@ -82,6 +82,7 @@ def make_animal(animal_id: str, rng, n=120, heavy=False, complete=True):
                      {"method": "kde", "level": 50, "geometry": MultiPolygon([Point(x[5], y[5]).buffer(80.0),
                                                                               Point(x[50], y[50]).buffer(60.0)])},
                      {"method": "mcp", "level": 100, "geometry": Polygon(np.column_stack([x, y])).convex_hull}],
+        "track_xy": pd.DataFrame({"x_m": x, "y_m": y}),
         "area_curve": pd.DataFrame({"n_fixes": [20, 40, 80, 120] * 2, "area_km2": [0.2, 0.35, 0.42, 0.44, 0.3, 0.5, 0.6, 0.61],
                                     "method": ["kde"] * 4 + ["mcp"] * 4, "level": [95] * 4 + [100] * 4}),
     }

@@ -8,8 +8,9 @@ Inputs beyond the data contract that the report reads when present
 (and skips when absent):
 
 - ``tables["fixes"]``: kept fixes with ``animal_id, x_m, y_m`` in time order
-  (masked coordinates when ``cfg.mask_locations``) — the track map and the
-  fixes under the range outlines;
+  (masked coordinates when ``cfg.mask_locations``) for the track map (else
+  ``range_extras["track_xy"]``); the range outlines are drawn over
+  ``range_extras["track_xy"]``, which shares their frame;
 - ``tables["rejected_xy"]`` (or ``range_extras["rejected_xy"]``, or
   ``x_m, y_m`` columns in ``tables["rejected"]``): rejected fixes with valid
   coordinates, drawn faintly;
@@ -152,7 +153,9 @@ def _draw_animal(result, fixes_a, rejected_a, masked: bool) -> list:
                                                                 residency["t_label"])))
     contours = curves.contour_data(extras)
     if contours:
-        points = track if track is not None else pd.DataFrame({"x_m": [], "y_m": []})
+        # Outlines come in the ranges stage's own (equal-area, possibly masked) frame: draw its fixes with them.
+        points = curves.xy_table(extras.get("track_xy"))
+        points = points if points is not None else pd.DataFrame({"x_m": [], "y_m": []})
         jobs.append(("range", lambda: figures.range_contours(points["x_m"], points["y_m"], contours, masked)))
     area = curves.area_series(extras)
     if area:

@@ -27,6 +27,7 @@ under ``pattern`` (else the residency row's ``pattern``).
 geometry a shapely (Multi)Polygon or a GeoJSON-like mapping in the animal's
 planar metres; ``area_curve`` — a table (or dict of columns) with
 ``n_fixes``, ``area_km2`` and optionally ``method``, ``level``;
+``track_xy`` — the fixes (``x_m``, ``y_m``) in the contours' frame;
 ``rejected_xy`` — rejected fixes with ``x_m``, ``y_m``.
 """
 
@@ -197,7 +198,7 @@ def contour_data(extras: dict) -> list:
         label = f"{str(method).upper()} {level:g} %" if isinstance(level, (int, float)) else str(method).upper()
         if rings:
             out.append((label, rings))
-    return out
+    return sorted(out, key=lambda item: item[0])  # same order, hence colours, as area_series
 
 
 def area_series(extras: dict) -> list:
@@ -216,7 +217,7 @@ def area_series(extras: dict) -> list:
         label = " ".join(f"{v:g} %" if isinstance(v, (int, float, np.number)) else str(v).upper() for v in key) or "area"
         part = part.sort_values("n_fixes")
         series.append((label, part["n_fixes"].to_numpy(float), part["area_km2"].to_numpy(float)))
-    return series
+    return sorted(series, key=lambda item: item[0])
 
 
 def xy_table(obj) -> pd.DataFrame | None:
