@@ -12,6 +12,8 @@ Butler, H. et al. (2016). The GeoJSON Format. IETF RFC 7946.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 import shapely
 from shapely.affinity import translate
@@ -74,9 +76,10 @@ def right_hand(geom):
 
 
 def feature(geom_lonlat, properties: dict) -> dict:
-    """One GeoJSON Feature (geometry null when the outline is empty)."""
+    """One GeoJSON Feature (geometry null when the outline is empty; NaN properties null, as JSON has no NaN)."""
     geometry = None if geom_lonlat.is_empty else _lists(mapping(geom_lonlat))
-    return {"type": "Feature", "geometry": geometry, "properties": dict(properties)}
+    plain = {k: (None if isinstance(v, float) and not math.isfinite(v) else v) for k, v in properties.items()}
+    return {"type": "Feature", "geometry": geometry, "properties": plain}
 
 
 def _lists(obj):

@@ -30,6 +30,7 @@ import contourpy
 import numpy as np
 from scipy.signal import fftconvolve
 from shapely.geometry import MultiPolygon, Polygon
+from shapely.geometry.polygon import orient
 from shapely.ops import unary_union
 from shapely.validation import make_valid
 
@@ -153,12 +154,14 @@ def isopleth(grid: DensityGrid, level: float):
     if not polygons:
         return MultiPolygon()
     shape = unary_union([p if p.is_valid else make_valid(p) for p in polygons])
-    return _polygonal(shape)
+    return _oriented_polygons(shape)
 
 
-def _polygonal(shape):
-    """Keep the polygon parts (make_valid and unions can add stray lines)."""
-    if shape.geom_type in ("Polygon", "MultiPolygon"):
-        return shape
-    parts = [g for g in getattr(shape, "geoms", []) if g.geom_type in ("Polygon", "MultiPolygon")]
-    return unary_union(parts) if parts else MultiPolygon()
+def _oriented_polygons(shape):
+    """Polygon parts only (make_valid and unions can add stray lines), exteriors counter-clockwise."""
+    parts = [g for g in getattr(shape, "geoms", [shape]) if g.geom_type == "Polygon" and not g.is_empty]
+    parts += [p for g in getattr(shape, "geoms", []) if g.geom_type == "MultiPolygon" for p in g.geoms]
+    parts = [orient(p, sign=1.0) for p in parts]
+    if not parts:
+        return MultiPolygon()
+    return parts[0] if len(parts) == 1 else MultiPolygon(parts)

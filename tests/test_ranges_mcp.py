@@ -1,0 +1,60 @@
+"""Minimum convex polygons checked against ellipsoidal areas and a reference convex hull."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from pyproj import Geod
+from scipy.spatial import ConvexHull
+from shapely.geometry import MultiPoint, shape
+
+from ranges_sim import fixes_from_xy
+from roamstat.config import Config
+from roamstat.ranges import mcp_polygon, ranges_animal
+
+GEOD = Geod(ellps="WGS84")
+
+
+def _row(rows, method, level):
+    return next(r for r in rows if r["method"] == method and r["level"] == level)
+
+
+@pytest.mark.parametrize("lat0, lon0", [(61.0, 15.0), (-35.0, 150.0), (72.0, -50.0), (1.0, -60.0)])
+def test_mcp100_area_equals_ellipsoidal_area_of_the_lonlat_hull(lat0, lon0):
+    rng = np.random.default_rng(int(abs(lat0 * 100 + lon0)))
+    xy = rng.normal(0, 4000, size=(300, 2)) * [1.0, 0.6]
+    fixes = fixes_from_xy(xy[:, 0], xy[:, 1], np.arange(300) / 24, lat0, lon0)
+    rows, features, _ = ranges_animal(fixes, Config())
+    # Reference: area of the convex hull of the lon/lat points on the WGS84 ellipsoid, by
+    # pyproj.Geod.geometry_area_perimeter (Karney 2013, Algorithms for geodesics, J. Geodesy 87).
+    hull = MultiPoint(np.column_stack([fixes["lon"], fixes["lat"]])).convex_hull
+    reference_m2 = abs(GEOD.geometry_area_perimeter(hull)[0])
+    assert _row(rows, "mcp", 100)["area_km2"] * 1e6 == pytest.approx(reference_m2, rel=2e-4)
+    # The written outline measures the same on the ellipsoid.
+    outline = next(f for f in features if f["properties"]["method"] == "mcp" and f["properties"]["level"] == 100)
+    assert abs(GEOD.geometry_area_perimeter(shape(outline["geometry"]))[0]) == pytest.approx(reference_m2, rel=2e-4)
+
+
+def test_mcp95_is_the_hull_of_the_95_percent_nearest_the_centroid():
+    # Definition (White & Garrott 1990): drop the 5 % of fixes farthest from the centroid; scipy's
+    # ConvexHull (Qhull, Barber et al. 1996) gives the reference area ("volume" in 2-D).
+    rng = np.random.default_rng(4)
+    xy = rng.standard_t(3, size=(401, 2)) * 1000
+    poly, n_used = mcp_polygon(xy[:, 0], xy[:, 1], 95)
+    assert n_used == math.ceil(0.95 * 401)
+    d2 = ((xy - xy.mean(axis=0)) ** 2).sum(axis=1)
+    kept = xy[np.argsort(d2)[:n_used]]
+    assert poly.area == pytest.approx(ConvexHull(kept).volume, rel=1e-9)
+    assert poly.area < ConvexHull(xy).volume
+
+
+def test_fixes_at_one_place_give_zero_area_and_say_why():
+    # A hull of coincident points has no area (common practice, no source); the kernel needs spread.
+    fixes = fixes_from_xy(np.zeros(30), np.zeros(30), np.arange(30) / 24)
+    rows, features, _ = ranges_animal(fixes, Config())
+    assert _row(rows, "mcp", 100)["area_km2"] == 0.0
+    assert "empty" in _row(rows, "mcp", 100)["note"]
+    assert math.isnan(_row(rows, "kde", 95)["area_km2"]) and "spread" in _row(rows, "kde", 95)["note"]
+    assert all(f["geometry"] is None for f in features)
