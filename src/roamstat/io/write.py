@@ -21,6 +21,8 @@ import numpy as np
 import pandas as pd
 
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+_UMASK = os.umask(0o022)
+os.umask(_UMASK)
 _FORMULA_PATTERN = r"^[=+\-@\t\r]"
 
 
@@ -33,6 +35,7 @@ def atomic_write(path: str | os.PathLike, data: str | bytes) -> Path:
     try:
         with os.fdopen(fd, mode, **({} if mode == "wb" else {"encoding": "utf-8", "newline": ""})) as fh:
             fh.write(data)
+        os.chmod(tmp, 0o666 & ~_UMASK)  # mkstemp makes 0600; outputs are meant to be shared
         os.replace(tmp, path)
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
