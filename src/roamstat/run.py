@@ -246,7 +246,7 @@ def run_command(command: str, paths, out_dir, cfg: Config, argv: list[str] | Non
         from roamstat.report import write_report
 
         with clock("report"):
-            write_report(out_dir, report_tables(loaded, tables), animals, run_info(loaded, cfg, argv), cfg)
+            write_report(out_dir, report_tables(loaded, tables, cfg), animals, run_info(loaded, cfg, argv), cfg)
     manifest = build_manifest(command, loaded, cfg, argv, clock.stages, time.perf_counter() - started)
     write_json(manifest, out_dir / MANIFEST)
     return result
@@ -288,10 +288,38 @@ def fixes_for_output(fixes: pd.DataFrame, cfg: Config) -> pd.DataFrame:
     return mask_fixes(fixes, cfg)
 
 
-def report_tables(loaded: Loaded, tables: dict) -> dict:
-    out = {"summary": loaded.summary, "rejected": loaded.rejected}
+def report_tables(loaded: Loaded, tables: dict, cfg: Config) -> dict:
+    out = {"summary": loaded.summary, "rejected": loaded.rejected,
+           "fixes": fixes_for_output(loaded.fixes, cfg),
+           "rejected_xy": rejected_in_frames(loaded, cfg)}
     out.update({k: v for k, v in tables.items() if isinstance(v, pd.DataFrame)})
     return out
+
+
+def rejected_in_frames(loaded: Loaded, cfg: Config) -> pd.DataFrame:
+    """Rejected rows with usable coordinates, in their animal's planar frame (for the track maps)."""
+    from roamstat.geo import project_lonlat
+
+    rejected = loaded.rejected
+    if not {"lat", "lon", "animal_id"} <= set(rejected.columns):
+        return pd.DataFrame(columns=["animal_id", "x_m", "y_m", "reason_code"])
+    lat = pd.to_numeric(rejected["lat"], errors="coerce")
+    lon = pd.to_numeric(rejected["lon"], errors="coerce")
+    usable = rejected[lat.between(-90, 90) & lon.between(-180, 180)
+                      & rejected["animal_id"].isin(list(loaded.projections))].copy()
+    frames = []
+    for aid, group in usable.groupby("animal_id", sort=True):
+        x, y = project_lonlat(group["lon"].astype(float).to_numpy(), group["lat"].astype(float).to_numpy(),
+                              loaded.projections[aid])
+        frames.append(pd.DataFrame({"animal_id": aid, "x_m": x, "y_m": y,
+                                    "reason_code": group["reason_code"].to_numpy()}))
+    table = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(
+        columns=["animal_id", "x_m", "y_m", "reason_code"])
+    if cfg.mask_locations and len(table):
+        from roamstat.ranges import mask_fixes
+
+        table = mask_fixes(table, cfg)
+    return table
 
 
 def run_info(loaded: Loaded, cfg: Config, argv) -> dict:
