@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -58,3 +59,40 @@ def test_fixes_at_one_place_give_zero_area_and_say_why():
     assert "empty" in _row(rows, "mcp", 100)["note"]
     assert math.isnan(_row(rows, "kde", 95)["area_km2"]) and "spread" in _row(rows, "kde", 95)["note"]
     assert all(f["geometry"] is None for f in features)
+
+
+def test_mcp100_on_real_antarctic_tracks_matches_the_geodesic_hull():
+    # Open data: RAATD subset in Darwin Core (Ropert-Coudert et al. 2020, Sci. Data 7:94), ../shared/realdata.
+    # Reference: the geodesically convex hull, found as the planar hull in a gnomonic projection (great
+    # circles are straight lines there; Snyder 1987, ch. 22), its area on the ellipsoid from pyproj.Geod
+    # (Karney 2013). For ranges of thousands of km the plain lon/lat hull is not convex on the globe, so it
+    # is not used as the reference here.
+    import pandas as pd
+    from pyproj import CRS
+
+    from roamstat.geo import animal_projection, project_lonlat, unproject_xy
+    from roamstat.ranges.mask import spherical_centroid
+
+    path = Path(__file__).parents[2] / "shared" / "realdata" / "antarctic_tracks_dwc.csv"
+    if not path.exists():
+        pytest.skip(f"open dataset {path.name} not found in {path.parent} (it lives beside the repo, not in it)")
+    table = pd.read_csv(path)
+    checked = 0
+    for animal_id, part in table.groupby("eventID"):
+        part = part.assign(time=pd.to_datetime(part["eventDate"], utc=True, format="mixed")).sort_values("time")
+        lat, lon = part["decimalLatitude"].to_numpy(float), part["decimalLongitude"].to_numpy(float)
+        if len(lat) < 10:
+            continue
+        x, y = project_lonlat(lon, lat, animal_projection(lat[0], lon[0]))
+        fixes = pd.DataFrame({"animal_id": animal_id, "time": part["time"].to_numpy(), "lat": lat, "lon": lon,
+                              "x_m": x, "y_m": y, "segment": 0, "interpolated": False})
+        fixes["time"] = pd.to_datetime(fixes["time"], utc=True)
+        rows, _, _ = ranges_animal(fixes, Config())
+        lat_c, lon_c = spherical_centroid(lat, lon)
+        gnomonic = CRS.from_proj4(f"+proj=gnom +lat_0={lat_c} +lon_0={lon_c} +datum=WGS84 +units=m +no_defs")
+        hull = MultiPoint(np.column_stack(project_lonlat(lon, lat, gnomonic))).convex_hull
+        hull_lon, hull_lat = unproject_xy(*np.asarray(hull.exterior.coords).T, gnomonic)
+        reference_m2 = abs(GEOD.polygon_area_perimeter(hull_lon, hull_lat)[0])
+        assert _row(rows, "mcp", 100)["area_km2"] * 1e6 == pytest.approx(reference_m2, rel=6e-3), animal_id
+        checked += 1
+    assert checked >= 20
