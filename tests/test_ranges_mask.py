@@ -86,3 +86,15 @@ def test_bad_mask_grid_is_a_user_error():
     fixes = independent_normal(50, 800.0, np.random.default_rng(6))
     with pytest.raises(RoamstatError, match="--mask-grid"):
         ranges_animal(fixes, Config(mask_locations=True, mask_grid=0.0))
+
+
+def test_planar_only_table_is_masked_per_animal():
+    # A table of planar coordinates only (as the run builds for rejected fixes) is still masked: each
+    # animal moves by its own hidden offset, distances within an animal are kept (common practice, no source).
+    a = independent_normal(30, 800.0, np.random.default_rng(1))[["animal_id", "x_m", "y_m"]]
+    b = a.assign(animal_id="b2")
+    table = pd.concat([a, b], ignore_index=True)
+    out = mask_fixes(table, Config(mask_locations=True))
+    shift = out[["x_m", "y_m"]].to_numpy() - table[["x_m", "y_m"]].to_numpy()
+    assert np.allclose(shift[:30], shift[0]) and np.allclose(shift[30:], shift[30])
+    assert not np.allclose(shift[0], shift[30]) and np.hypot(*shift[0]) > 0

@@ -112,7 +112,9 @@ def mask_fixes(fixes: pd.DataFrame, cfg, rng: np.random.Generator | None = None)
 
     ``x_m, y_m`` become metres from one hidden origin for the whole deployment
     (so animals keep their positions relative to each other), in an
-    equal-area frame centred on the deployment's centroid.  ``lat``, ``lon``,
+    equal-area frame centred on the deployment's centroid.  A table with only
+    planar ``animal_id, x_m, y_m`` (each animal in its own frame) gets one
+    hidden origin per animal instead.  ``lat``, ``lon``,
     projected input coordinates and every ``orig_*`` column (raw input text,
     which may spell out the coordinates) are removed; a ``masked`` column says
     so.
@@ -131,15 +133,26 @@ def mask_fixes(fixes: pd.DataFrame, cfg, rng: np.random.Generator | None = None)
     pandas.DataFrame
     """
     out = fixes.drop(columns=[c for c in fixes.columns if c in POSITION_COLUMNS or str(c).startswith("orig_")])
-    good = np.isfinite(fixes["lat"].to_numpy(float)) & np.isfinite(fixes["lon"].to_numpy(float))
+    grid_m = getattr(cfg, "mask_grid", None)
     x = np.full(len(fixes), np.nan)
     y = np.full(len(fixes), np.nan)
-    if good.any():
-        lat_c, lon_c = spherical_centroid(fixes["lat"].to_numpy(float)[good], fixes["lon"].to_numpy(float)[good])
-        frame = EqualAreaFrame(lat_c, lon_c)
-        px, py = frame.forward(fixes["lon"].to_numpy(float)[good], fixes["lat"].to_numpy(float)[good])
-        origin = hidden_origin(px, py, getattr(cfg, "mask_grid", None), rng)
-        x[good], y[good] = origin.xy(px, py)
+    if not {"lat", "lon"} <= set(fixes.columns):
+        # Planar coordinates only (each animal in its own frame): one hidden origin per animal.
+        if not {"animal_id", "x_m", "y_m"} <= set(fixes.columns):
+            raise RoamstatError("table to mask has neither lat/lon nor animal_id, x_m, y_m columns; "
+                                "pass the fixes table from track.prepare_fixes")
+        px, py = fixes["x_m"].to_numpy(float), fixes["y_m"].to_numpy(float)
+        for _, rows in fixes.groupby(fixes["animal_id"].astype(str), sort=True).indices.items():
+            good = rows[np.isfinite(px[rows]) & np.isfinite(py[rows])]
+            if len(good):
+                x[good], y[good] = hidden_origin(px[good], py[good], grid_m, rng).xy(px[good], py[good])
+    else:
+        good = np.isfinite(fixes["lat"].to_numpy(float)) & np.isfinite(fixes["lon"].to_numpy(float))
+        if good.any():
+            lat, lon = fixes["lat"].to_numpy(float)[good], fixes["lon"].to_numpy(float)[good]
+            frame = EqualAreaFrame(*spherical_centroid(lat, lon))
+            px, py = frame.forward(lon, lat)
+            x[good], y[good] = hidden_origin(px, py, grid_m, rng).xy(px, py)
     out["x_m"], out["y_m"] = x, y
     out["masked"] = True
     return out
