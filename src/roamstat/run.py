@@ -268,7 +268,7 @@ def write_table(table: pd.DataFrame, path: Path, cfg: Config) -> None:
 def write_tables(out_dir: Path, loaded: Loaded, tables: dict, cfg: Config) -> None:
     from roamstat.io.write import write_json as _json
 
-    named = {"fixes": fixes_for_output(loaded.fixes, cfg), "rejected": loaded.rejected}
+    named = {"fixes": fixes_for_output(loaded.fixes, cfg), "rejected": rejected_for_output(loaded.rejected, cfg)}
     if loaded.steps is not None:
         named["steps"] = loaded.steps
         named["summary"] = loaded.summary
@@ -289,37 +289,62 @@ def fixes_for_output(fixes: pd.DataFrame, cfg: Config) -> pd.DataFrame:
 
 
 def report_tables(loaded: Loaded, tables: dict, cfg: Config) -> dict:
-    out = {"summary": loaded.summary, "rejected": loaded.rejected,
-           "fixes": fixes_for_output(loaded.fixes, cfg),
-           "rejected_xy": rejected_in_frames(loaded, cfg)}
+    fixes_xy, rejected_xy = map_points(loaded, cfg)
+    out = {"summary": loaded.summary, "rejected": rejected_for_output(loaded.rejected, cfg),
+           "fixes": fixes_xy, "rejected_xy": rejected_xy}
     out.update({k: v for k, v in tables.items() if isinstance(v, pd.DataFrame)})
     return out
 
 
-def rejected_in_frames(loaded: Loaded, cfg: Config) -> pd.DataFrame:
-    """Rejected rows with usable coordinates, in their animal's planar frame (for the track maps)."""
-    from roamstat.geo import project_lonlat
-
+def usable_rejected(loaded: Loaded) -> pd.DataFrame:
+    """Rejected rows whose coordinates are valid numbers, for drawing them faintly on the maps."""
     rejected = loaded.rejected
     if not {"lat", "lon", "animal_id"} <= set(rejected.columns):
-        return pd.DataFrame(columns=["animal_id", "x_m", "y_m", "reason_code"])
+        return rejected.iloc[0:0]
     lat = pd.to_numeric(rejected["lat"], errors="coerce")
     lon = pd.to_numeric(rejected["lon"], errors="coerce")
-    usable = rejected[lat.between(-90, 90) & lon.between(-180, 180)
-                      & rejected["animal_id"].isin(list(loaded.projections))].copy()
-    frames = []
-    for aid, group in usable.groupby("animal_id", sort=True):
-        x, y = project_lonlat(group["lon"].astype(float).to_numpy(), group["lat"].astype(float).to_numpy(),
-                              loaded.projections[aid])
-        frames.append(pd.DataFrame({"animal_id": aid, "x_m": x, "y_m": y,
-                                    "reason_code": group["reason_code"].to_numpy()}))
-    table = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(
-        columns=["animal_id", "x_m", "y_m", "reason_code"])
-    if cfg.mask_locations and len(table):
+    keep = lat.between(-90, 90) & lon.between(-180, 180) & rejected["animal_id"].isin(list(loaded.projections))
+    out = rejected.loc[keep, ["animal_id", "reason_code"]].copy()
+    out["lat"], out["lon"] = lat[keep].astype(float), lon[keep].astype(float)
+    return out.reset_index(drop=True)
+
+
+def map_points(loaded: Loaded, cfg: Config) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Kept and rejected fixes in one planar frame per map, masked together when asked."""
+    from roamstat.geo import project_lonlat
+
+    fixes = observed_fixes(loaded.fixes)[["animal_id", "lat", "lon", "x_m", "y_m"]].copy()
+    rejected = usable_rejected(loaded)
+    if cfg.mask_locations:
         from roamstat.ranges import mask_fixes
 
-        table = mask_fixes(table, cfg)
-    return table
+        both = pd.concat([fixes.assign(kept=True), rejected.assign(kept=False)], ignore_index=True)
+        both = mask_fixes(both.drop(columns=["x_m", "y_m"]), cfg)
+        kept = both["kept"].astype(bool)
+        return both[kept].drop(columns="kept"), both[~kept].drop(columns="kept")
+    parts = []
+    for aid, group in rejected.groupby("animal_id", sort=True):
+        x, y = project_lonlat(group["lon"].to_numpy(), group["lat"].to_numpy(), loaded.projections[aid])
+        parts.append(group.assign(x_m=x, y_m=y))
+    rejected_xy = pd.concat(parts, ignore_index=True) if parts else rejected.assign(x_m=[], y_m=[])
+    return fixes, rejected_xy
+
+
+def rejected_for_output(rejected: pd.DataFrame, cfg: Config) -> pd.DataFrame:
+    """rejected.csv: every original value, unless masking hides the positions."""
+    if not cfg.mask_locations:
+        return rejected
+    from roamstat.ranges.mask import POSITION_COLUMNS
+
+    hidden = [c for c in rejected.columns if c in POSITION_COLUMNS or str(c).startswith("orig_")]
+    return rejected.drop(columns=hidden).assign(masked=True)
+
+
+def visible_projections(loaded: Loaded, cfg: Config) -> dict:
+    """Per-animal frames, or a placeholder when masking (each frame is centred on a real fix)."""
+    if cfg.mask_locations:
+        return {aid: "hidden (--mask-locations)" for aid in loaded.projections}
+    return loaded.projections
 
 
 def run_info(loaded: Loaded, cfg: Config, argv) -> dict:
@@ -330,7 +355,7 @@ def run_info(loaded: Loaded, cfg: Config, argv) -> dict:
         "n_read": loaded.read.n_read,
         "n_kept": n_kept(loaded.fixes),
         "n_rejected": int(len(loaded.rejected)),
-        "projections": loaded.projections,
+        "projections": visible_projections(loaded, cfg),
         "masked": cfg.mask_locations,
         "inputs": [f["path"] for f in loaded.read.files],
     }
@@ -362,7 +387,7 @@ def build_manifest(command, loaded: Loaded, cfg: Config, argv, stages, duration_
         "rows": {"read": read.n_read, "kept": n_kept(loaded.fixes), "rejected": int(len(loaded.rejected))},
         "rejected_by_reason": {str(k): int(v) for k, v in loaded.rejected["reason_code"].value_counts().sort_index().items()}
         if len(loaded.rejected) else {},
-        "projections": loaded.projections,
+        "projections": visible_projections(loaded, cfg),
         "python": platform.python_version(),
         "platform": platform.platform(),
         "packages": package_versions(),
