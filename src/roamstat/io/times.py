@@ -1,0 +1,98 @@
+"""Fix times to timezone-aware UTC.
+
+Accepted: ISO 8601 with or without an offset (offsets honoured, and they may
+differ from row to row), a space instead of ``T``, hours without a leading
+zero (``2005-10-31T0:35:05``), date-only values, and Unix epoch seconds or
+milliseconds.  Times without an offset are read in the ``--tz`` zone.
+Values that cannot be read become NaT, and the screen rejects their rows
+with reason ``bad_time``.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from roamstat.errors import RoamstatError
+
+_OFFSET = r"\d:\d{2}(?::\d{2}(?:[.,]\d+)?)?\s*(?:[Zz]|UTC|[+-]\d{2}(?::?\d{2})?)$"
+# Epoch seconds between 1973 and 2096, or milliseconds over the same span.
+_EPOCH_S = (1e8, 4e9)
+_EPOCH_MS = (1e11, 4e12)
+
+
+def parse_times(values: pd.Series, tz: str, where: str) -> tuple[pd.Series, str]:
+    """Parse a column of time strings; returns UTC times and a note on how they were read."""
+    text = values.astype("string").str.strip()
+    present = text.notna() & (text != "")
+    if present.any() and _looks_numeric(text[present]):
+        return _epoch(text, present, where), "Unix epoch"
+    out = pd.Series(pd.NaT, index=values.index, dtype="datetime64[ns, UTC]")
+    naive_zone = str(tz).upper() not in ("UTC", "Z", "GMT", "ETC/UTC")
+    has_offset = text.str.contains(_OFFSET, regex=True, na=False) if naive_zone else present
+    if has_offset.any():
+        # With --tz UTC a time without offset is UTC too, so one pass reads everything.
+        out[has_offset] = _iso(text[has_offset], utc=True)
+    naive = present & ~has_offset
+    if naive.any():
+        local = _iso(text[naive], utc=False)
+        try:
+            out[naive] = local.dt.tz_localize(tz, ambiguous="NaT", nonexistent="NaT").dt.tz_convert("UTC")
+        except Exception as exc:  # unknown zone name
+            raise RoamstatError(f"--tz {tz!r} is not a time zone name (e.g. UTC, Europe/Oslo): {exc}") from None
+    if not naive_zone:
+        offsets = text.str.contains(_OFFSET, regex=True, na=False) if len(text) <= 200_000 else None
+        naive_present = None if offsets is None else bool((present & ~offsets).any())
+        note = "times without offset read as UTC" if naive_present in (None, True) else "offsets in the data"
+    else:
+        note = "offsets in the data" if not naive.any() else f"times without offset read as {tz}"
+    return out, note
+
+
+def combine_date_time(date: pd.Series, time_of_day: pd.Series) -> pd.Series:
+    """Separate date and time-of-day columns as one ISO-like string column."""
+    d = date.astype("string").str.strip()
+    t = time_of_day.astype("string").str.strip().fillna("")
+    return (d + "T" + t).where(t != "", d)
+
+
+def _normalise(text: pd.Series) -> pd.Series:
+    text = text.str.replace(r"^(\d{4}-\d{1,2}-\d{1,2})[ T](\d)(?=:)", r"\1T0\2", regex=True)
+    text = text.str.replace(r"^(\d{4}-\d{1,2}-\d{1,2}) (?=\d)", r"\1T", regex=True)
+    text = text.str.replace(r"^(\d{4})-(\d)(?=-)", r"\1-0\2", regex=True)
+    text = text.str.replace(r"^(\d{4}-\d{2})-(\d)(?=\D|$)", r"\1-0\2", regex=True)
+    text = text.str.replace(r"\s*UTC$", "Z", regex=True)
+    return text.str.replace(r"\s+(?=[+-]\d{2}:?\d{2}$)", "", regex=True)
+
+
+def _iso(text: pd.Series, utc: bool) -> pd.Series:
+    parsed = pd.to_datetime(text, format="ISO8601", utc=utc, errors="coerce")
+    failed = parsed.isna() & text.notna() & (text != "")
+    if failed.any():
+        # Irregular rows only (unpadded hours, a space before the offset, ...): normalise and retry.
+        retry = pd.to_datetime(_normalise(text[failed]), format="ISO8601", utc=utc, errors="coerce")
+        parsed = parsed.astype(retry.dtype) if len(parsed) and parsed.isna().all() else parsed
+        parsed[failed] = retry
+    return parsed
+
+
+def _looks_numeric(text: pd.Series) -> bool:
+    sample = text.head(2000)
+    return bool(pd.to_numeric(sample, errors="coerce").notna().mean() > 0.95)
+
+
+def _epoch(text: pd.Series, present: pd.Series, where: str) -> pd.Series:
+    numbers = pd.to_numeric(text, errors="coerce")
+    finite = numbers[present & numbers.notna()]
+    lo, hi = float(finite.min()), float(finite.max())
+    if _EPOCH_S[0] <= lo and hi <= _EPOCH_S[1]:
+        unit = "s"
+    elif _EPOCH_MS[0] <= lo and hi <= _EPOCH_MS[1]:
+        unit = "ms"
+    else:
+        raise RoamstatError(
+            f"{where}: times are plain numbers from {lo:g} to {hi:g}, which are neither Unix epoch seconds "
+            "nor milliseconds of a plausible date; convert them to ISO 8601 (e.g. 2024-05-01T06:00:00Z)"
+        )
+    out = pd.to_datetime(numbers.where(np.isfinite(numbers)), unit=unit, utc=True, errors="coerce")
+    return out.astype("datetime64[ns, UTC]")
