@@ -40,7 +40,8 @@ def map_animals(
     desc: str = "animals",
 ) -> list:
     """``[func(t) for t in tasks]`` on the chosen backend, results in task order."""
-    bar = tqdm(total=len(tasks), desc=desc, unit="animal", disable=quiet or len(tasks) == 0,
+    # disable=None: tqdm shows the bar only on a terminal, so logs stay clean.
+    bar = tqdm(total=len(tasks), desc=desc, unit="animal", disable=True if quiet or not tasks else None,
                leave=False, dynamic_ncols=True)
     try:
         if scheduler:

@@ -125,21 +125,25 @@ class AnimalTask:
 
 def analyse_animal(task: AnimalTask) -> AnimalResult:
     """Fit models, run null tests and estimate ranges for one animal."""
-    from roamstat import compare, models, ranges
-
     cfg, aid = task.cfg, task.animal_id
     result = AnimalResult(animal_id=aid, fits=pd.DataFrame(), null_tests=pd.DataFrame(),
                           residency={}, ranges=pd.DataFrame())
     if "fit" in task.stages:
+        from roamstat import models
+
         fitted = models.fit_animal(task.steps, cfg, animal_rng(cfg.seed, aid, "fit"))
         result.fitted = fitted
         result.fits = _with_id(fitted.rows, aid)
         if "null" in task.stages:
+            from roamstat import compare
+
             rows, curves = compare.test_animal(analysed_track(task.fixes), task.steps, fitted, task.nominal_dt_s,
                                                cfg, animal_rng(cfg.seed, aid, "null"))
             result.null_tests = _with_id(rows, aid)
             result.null_curves = curves
     if "ranges" in task.stages:
+        from roamstat import ranges
+
         row, curve = ranges.residency_animal(analysed_track(task.fixes), cfg)
         result.residency = {"animal_id": aid, **row}
         result.residency_curve = curve
@@ -185,8 +189,6 @@ def animal_tasks(loaded: Loaded, stages: tuple, cfg: Config) -> list[AnimalTask]
 
 def analyse(loaded: Loaded, stages: tuple, cfg: Config, clock: StageClock) -> tuple[dict, list]:
     """Per-animal stages in parallel, then the deployment-level ones."""
-    from roamstat import compare, ranges
-
     tables: dict[str, pd.DataFrame] = {}
     per_animal = [s for s in stages if s in ("fit", "null", "ranges")]
     if not per_animal:
@@ -198,8 +200,12 @@ def analyse(loaded: Loaded, stages: tuple, cfg: Config, clock: StageClock) -> tu
         if "fit" in stages:
             tables["fits"] = _concat([a.fits for a in animals])
         if "null" in stages:
+            from roamstat import compare
+
             tables["null_tests"] = compare.finalise(_concat([a.null_tests for a in animals]), cfg)
         if "ranges" in stages:
+            from roamstat import ranges
+
             residency = pd.DataFrame([a.residency for a in animals])
             tables["residency"] = ranges.finalise_residency(residency, tables.get("null_tests"))
             tables["ranges"] = _concat([a.ranges for a in animals])
