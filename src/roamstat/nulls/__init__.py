@@ -1,0 +1,48 @@
+"""Null walks for the displacement tests.
+
+Each null is built from one animal's fits (the protocol of
+:mod:`roamstat.models.base`, never a family name) and offers
+``simulate(n_steps, n_reps, rng, eval_idx)`` -> squared displacement (m^2) of
+``n_reps`` walks at the given step indices.  :func:`build_null` builds one by
+its name in ``Config.nulls``; the correlated random walk also gives the
+Kareiva & Shigesada (1983) expectation (:mod:`roamstat.nulls.analytic`).
+"""
+
+from __future__ import annotations
+
+from roamstat.nulls.analytic import expected_nsd, expected_nsd_symmetric
+from roamstat.nulls.crw import CrwNull
+from roamstat.nulls.levy import LevyNull
+from roamstat.nulls.observed import NO_SHORT_STEPS, ShortSteps, short_steps
+from roamstat.nulls.shuffle import ShuffleNull
+from roamstat.nulls.walk import NullUnavailable, Walk, simulate_nsd
+
+NULLS = {"crw": CrwNull, "shuffle": ShuffleNull, "levy": LevyNull}
+
+
+def build_null(name: str, fits, short: ShortSteps = NO_SHORT_STEPS) -> Walk:
+    """The null walk ``name`` ("crw", "shuffle" or "levy") for one animal.
+
+    Parameters
+    ----------
+    name : str
+        Null model name.
+    fits : AnimalFits-like
+        The animal's fitted models and observed values.
+    short : ShortSteps
+        Observed steps at or below the fitting threshold.
+
+    Returns
+    -------
+    Walk
+
+    Raises
+    ------
+    NullUnavailable
+        When the animal lacks what this null needs (the message says what).
+    """
+    return NULLS[name](fits, short)
+
+
+__all__ = ["CrwNull", "LevyNull", "NULLS", "NO_SHORT_STEPS", "NullUnavailable", "ShortSteps", "ShuffleNull",
+           "Walk", "build_null", "expected_nsd", "expected_nsd_symmetric", "short_steps", "simulate_nsd"]

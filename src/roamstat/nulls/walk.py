@@ -1,0 +1,146 @@
+"""The common walk engine: (step, turn) variates -> net squared displacement curves.
+
+A null walk is fully described by two sources of variates, one for step
+lengths and one for turning angles, each a callable ``(n, rng) -> ndarray``
+of n independent draws.  :func:`simulate_nsd` walks ``n_reps`` replicates of
+``n_steps`` steps, vectorised over replicates and steps, in chunks of at most
+``CHUNK_ELEMENTS`` steps so memory stays flat whatever the replicate count.
+
+Headings are the cumulative sum of the turns (the first turn sets the first
+heading; net displacement does not depend on the frame's orientation), and
+the position after k steps is the sum of l_j (cos Phi_j, sin Phi_j) for
+j <= k.  Only positions at the requested step indices are kept: increments are
+summed between consecutive indices (``np.add.reduceat``) and then accumulated,
+which needs no per-step position array.
+"""
+
+from __future__ import annotations
+
+from typing import Callable
+
+import numpy as np
+
+#: Steps walked per chunk (replicates x steps); ~16 MB per float64 work array.
+CHUNK_ELEMENTS = 2_000_000
+
+Source = Callable[[int, np.random.Generator], np.ndarray]
+
+
+class NullUnavailable(Exception):
+    """A null walk cannot be built for this animal; the message says why."""
+
+
+def simulate_nsd(step_source: Source, turn_source: Source, n_steps: int, n_reps: int,
+                 rng: np.random.Generator, eval_idx, chunk_elements: int = CHUNK_ELEMENTS) -> np.ndarray:
+    """Net squared displacement of simulated walks at chosen step indices.
+
+    Parameters
+    ----------
+    step_source, turn_source : callable
+        ``(n, rng) -> ndarray`` of n step lengths (m) / turning angles (rad).
+    n_steps : int
+        Steps per walk.
+    n_reps : int
+        Number of replicate walks.
+    rng : numpy.random.Generator
+        The only source of randomness.  Each chunk draws its steps, then its turns.
+    eval_idx : array of int
+        Strictly increasing step indices in 0..n_steps (0 is the start, NSD 0).
+    chunk_elements : int
+        Upper bound on replicates x steps held at once.
+
+    Returns
+    -------
+    ndarray, shape (n_reps, len(eval_idx))
+        Squared distance (m^2) from the start after ``eval_idx`` steps.
+    """
+    idx = np.asarray(eval_idx, dtype=np.int64)
+    if idx.ndim != 1 or idx.size == 0 or np.any(np.diff(idx) <= 0) or idx[0] < 0 or idx[-1] > n_steps:
+        raise ValueError("eval_idx must be strictly increasing step indices within 0..n_steps")
+    out = np.zeros((n_reps, idx.size))
+    positive = idx > 0
+    ends = idx[positive]
+    if ends.size == 0 or n_reps == 0:
+        return out
+    m = int(ends[-1])  # steps after the last requested index are never needed
+    starts = np.concatenate(([0], ends[:-1]))
+    chunk = max(1, min(n_reps, chunk_elements // m))
+    work = np.empty((chunk, m))
+    for first in range(0, n_reps, chunk):
+        c = min(chunk, n_reps - first)
+        steps = _block(step_source(c * m, rng), c, m)
+        heading = _block(turn_source(c * m, rng), c, m)
+        np.cumsum(heading, axis=1, out=heading)
+        x = _summed(np.cos(heading, out=work[:c]), steps, starts)
+        y = _summed(np.sin(heading, out=heading), steps, starts)
+        np.square(x, out=x)
+        np.square(y, out=y)
+        out[first:first + c, positive] = x + y
+    return out
+
+
+def _block(values, c: int, m: int) -> np.ndarray:
+    values = np.asarray(values, dtype=np.float64)
+    if not values.flags.writeable or not values.flags.c_contiguous:
+        values = values.copy()
+    if values.size != c * m:
+        raise ValueError(f"a variate source returned {values.size} values, {c * m} were asked for")
+    return values.reshape(c, m)
+
+
+def _summed(unit: np.ndarray, steps: np.ndarray, starts: np.ndarray) -> np.ndarray:
+    """Coordinate after each requested step count: unit vector x step, summed per span, accumulated."""
+    np.multiply(unit, steps, out=unit)
+    spans = np.add.reduceat(unit, starts, axis=1)
+    return np.cumsum(spans, axis=1, out=spans)
+
+
+class Walk:
+    """A null walk given by its step-length and turning-angle sources.
+
+    Parameters
+    ----------
+    step_source, turn_source : callable
+        ``(n, rng) -> ndarray`` of independent draws.
+    """
+
+    def __init__(self, step_source: Source, turn_source: Source):
+        self.step_source = step_source
+        self.turn_source = turn_source
+
+    def simulate(self, n_steps: int, n_reps: int, rng: np.random.Generator, eval_idx) -> np.ndarray:
+        """Squared displacement (m^2), shape (n_reps, len(eval_idx)); see :func:`simulate_nsd`."""
+        return simulate_nsd(self.step_source, self.turn_source, n_steps, n_reps, rng, eval_idx)
+
+
+def resampler(values) -> Source:
+    """Draw with replacement from observed values (each equally likely)."""
+    values = np.asarray(values, dtype=np.float64)
+
+    def draw(n: int, rng: np.random.Generator) -> np.ndarray:
+        return values[rng.integers(0, values.size, n)]
+
+    return draw
+
+
+def mixture(p_second: float, first: Source, second: Source) -> Source:
+    """Each draw from ``second`` with probability ``p_second``, else from ``first``."""
+    if p_second <= 0.0:
+        return first
+    if p_second >= 1.0:
+        return second
+
+    def draw(n: int, rng: np.random.Generator) -> np.ndarray:
+        pick = rng.random(n) < p_second
+        out = np.empty(n)
+        k = int(pick.sum())
+        out[~pick] = first(n - k, rng)
+        out[pick] = second(k, rng)
+        return out
+
+    return draw
+
+
+def uniform_turns(n: int, rng: np.random.Generator) -> np.ndarray:
+    """Turning angles uniform on [-pi, pi) (no directional persistence)."""
+    return rng.uniform(-np.pi, np.pi, n)
