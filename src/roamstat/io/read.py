@@ -19,7 +19,7 @@ import pandas as pd
 
 from roamstat.config import Config
 from roamstat.errors import RoamstatError
-from roamstat.io.columns import detect_columns, normalise, require_columns
+from roamstat.io.colmap import detect_columns, normalise, require_columns
 from roamstat.io.csvtext import read_delimited
 from roamstat.io.gpx import read_gpx
 from roamstat.io.times import combine_date_time, parse_times
