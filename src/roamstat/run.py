@@ -274,7 +274,7 @@ def write_table(table: pd.DataFrame, path: Path, cfg: Config) -> None:
 def write_tables(out_dir: Path, loaded: Loaded, tables: dict, cfg: Config) -> None:
     from roamstat.io.write import write_json as _json
 
-    named = {"fixes": fixes_for_output(loaded.fixes, cfg), "rejected": rejected_for_output(loaded.rejected, cfg)}
+    named = {"fixes": fixes_for_output(loaded.fixes, cfg, loaded.read), "rejected": rejected_for_output(loaded.rejected, cfg)}
     if loaded.steps is not None:
         named["steps"] = loaded.steps
         named["summary"] = loaded.summary
@@ -285,13 +285,23 @@ def write_tables(out_dir: Path, loaded: Loaded, tables: dict, cfg: Config) -> No
         _json(tables["ranges_geojson"], out_dir / "ranges.geojson")
 
 
-def fixes_for_output(fixes: pd.DataFrame, cfg: Config) -> pd.DataFrame:
-    """fixes.csv: exact coordinates unless masking is on (then planar ones only)."""
-    if not cfg.mask_locations:
-        return fixes
-    from roamstat.ranges import mask_fixes
+def fixes_for_output(fixes: pd.DataFrame, cfg: Config, read: ReadResult | None = None) -> pd.DataFrame:
+    """fixes.csv: parsed columns plus the input's other columns under their own names.
 
-    return mask_fixes(fixes, cfg)
+    Original columns already parsed into a standard column (time, coordinates,
+    id, DOP, ...) are not repeated; the rest pass through unchanged.  With
+    masking, positions are replaced by coordinates relative to a hidden origin.
+    """
+    if cfg.mask_locations:
+        from roamstat.ranges import mask_fixes
+
+        return mask_fixes(fixes, cfg)  # also drops every original column: raw text can spell positions
+    if read is not None:
+        parsed = {f"orig_{col}" for info in read.files for col in info.get("columns", {}).values()}
+        fixes = fixes.drop(columns=[c for c in fixes.columns if c in parsed])
+        rename = {c: c[5:] for c in fixes.columns if str(c).startswith("orig_") and c[5:] not in fixes.columns}
+        fixes = fixes.rename(columns=rename)
+    return fixes
 
 
 def report_tables(loaded: Loaded, tables: dict, cfg: Config) -> dict:

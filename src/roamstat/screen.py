@@ -23,7 +23,7 @@ too_fast           implied speed from the previous kept fix above               
 spike              out-and-back spikes: speed in and out both above the spike   on
                    threshold and a near-reversal at the fix (Bjørneraas et al.
                    2010); threshold ``--spike-speed`` or, by default, 10x the
-                   animal's median speed and at least 2 m/s
+                   animal's median speed and at least 0.1 m/s
 =================  ===========================================================  ================
 
 The location-quality order 3 > 2 > 1 > 0 > A > B > Z is the usual ordering of
@@ -42,7 +42,7 @@ import numpy as np
 import pandas as pd
 
 from roamstat.config import Config
-from roamstat.geo import geodesic_inverse
+from roamstat.geo import geodesic_inverse, geodesic_inverse_full
 
 REASONS = {
     "bad_time": "time missing or not readable",
@@ -60,7 +60,7 @@ REASONS = {
 }
 QUALITY_ORDER = ["Z", "B", "A", "0", "1", "2", "3"]  # worst to best
 SPIKE_MEDIAN_FACTOR = 10.0
-SPIKE_MIN_SPEED = 2.0  # m/s
+SPIKE_MIN_SPEED = 0.1  # m/s: 720 m in 2 h, 30 m in 5 min; with the reversal this marks errors, not moves
 
 
 def screen(rows: pd.DataFrame, cfg: Config) -> tuple[pd.DataFrame, pd.DataFrame]:
@@ -185,15 +185,17 @@ def _spikes(rows, order, reason, cfg: Config) -> None:
     live, same, lat, lon, t_s = _live_sequence(rows, order, reason)
     if len(live) < 3:
         return
-    speed, _ = _pair_speeds(lat, lon, t_s, live[:-1], live[1:])
-    speed = np.where(same[1:], speed, np.nan)
+    prev, nxt = live[:-1], live[1:]
+    dist, depart, arrive = geodesic_inverse_full(lat[prev], lon[prev], lat[nxt], lon[nxt])
+    dt = t_s[nxt] - t_s[prev]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        speed = np.where(same[1:], np.where(dt > 0, dist / dt, np.inf), np.nan)
     v_in, v_out = speed[:-1], speed[1:]
     mid = live[1:-1]
     valid = same[1:-1] & same[2:]
-    _, az_in = geodesic_inverse(lat[live[:-2]], lon[live[:-2]], lat[mid], lon[mid])
-    _, az_out = geodesic_inverse(lat[mid], lon[mid], lat[live[2:]], lon[live[2:]])
-    cos_turn = np.cos(az_out - az_in)
-    threshold = _spike_thresholds(rows["animal_id"].to_numpy()[live[1:]], speed, cfg)[:-1]
+    # The turn at the middle fix: arrival direction of the move in, departure of the move out.
+    cos_turn = np.cos(depart[1:] - arrive[:-1])
+    threshold = _spike_thresholds(rows["animal_id"].to_numpy()[nxt], speed, cfg)[:-1]
     spike = valid & (v_in > threshold) & (v_out > threshold) & (cos_turn < cfg.spike_cos)
     reason.iloc[mid[spike]] = "spike"
 

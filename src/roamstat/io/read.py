@@ -1,38 +1,49 @@
 """Input files to one table of candidate fixes (the ``ReadResult`` of the data contract).
 
-Nothing is dropped silently: rows that cannot be read as records (wrong field
-count, a repeated header) come back in ``rejected`` with a reason; every other
-row comes back in ``rows`` with its values parsed (NaN / NaT where a value
-could not be read, which the screen then rejects with a reason).
+Nothing is dropped silently: records that cannot be read as rows (a field
+count that differs from the header's, a repeated header line) come back in
+``rejected`` with a reason code; every other record comes back in ``rows``,
+its values parsed (NaN / NaT where a value could not be read, which the screen
+then rejects with a reason).  ``n_read`` counts both, so
+``n_read == len(rows) + len(rejected)`` for every input.
+
+Conventions
+-----------
+* A file without an animal-id column is one animal, named after the file
+  (its name without the extension).  Rows whose id cell is empty get the same
+  name, with a note in the file's ``notes``.
+* Decimal commas are read in semicolon- and tab-delimited files (``61,5``).
+* Projected input (``--x-col --y-col --crs``) is inverse-projected to WGS84
+  latitude and longitude with PROJ; ``x_in, y_in`` keep the input values.
+* ``source_row`` is the 1-based physical line where the record starts in the
+  file (the header is line 1; a quoted field with line breaks spans several
+  lines); for GPX, the line of the ``<trkpt>`` tag.
 """
 
 from __future__ import annotations
 
 import hashlib
-import json
-import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
-from roamstat.config import Config
 from roamstat.errors import RoamstatError
-from roamstat.io.colmap import detect_columns, normalise, require_columns
-from roamstat.io.csvtext import read_delimited
-from roamstat.io.gpx import read_gpx
+from roamstat.io.columns import Mapping, detect
+from roamstat.io.csvsniff import DELIMITER_NAMES, load_bytes, read_table
+from roamstat.io.gpx import looks_like_gpx, read_gpx
 from roamstat.io.times import combine_date_time, parse_times
 
 REJECTED_BASE = ["source_file", "source_row", "animal_id", "reason_code", "reason"]
-READ_REASONS = {
-    "field_count": "the row has a different number of fields than the header",
-    "header_repeat": "a repeated header row",
-}
+STANDARD = ["animal_id", "time", "lat", "lon", "dop", "n_sats", "fix_type", "quality", "source_file", "source_row"]
+_QUALITY_IN_JSON = r'"?location_quality"?\s*:\s*"?([0-9A-Za-z]+)"?'
 
 
 @dataclass
 class ReadResult:
+    """Everything read from the inputs (see DEVELOPERS.md, data contract)."""
+
     rows: pd.DataFrame
     rejected: pd.DataFrame
     files: list = field(default_factory=list)
@@ -41,125 +52,176 @@ class ReadResult:
     tz_note: str = ""
 
 
-def read_inputs(paths, cfg: Config) -> ReadResult:
-    """Read every input file; concatenate their rows, each remembering its file and line."""
+@dataclass
+class _FileRead:
+    rows: pd.DataFrame
+    rejected: pd.DataFrame
+    info: dict
+    tz_note: str
+
+
+def read_inputs(paths, cfg) -> ReadResult:
+    """Read every input file and concatenate their rows, each remembering its file and line.
+
+    Parameters
+    ----------
+    paths : list of str or Path
+        CSV (comma, semicolon or tab delimited) or GPX files.
+    cfg : roamstat.config.Config
+        Uses ``id_col, time_col, date_col, lat_col, lon_col, x_col, y_col, crs, tz``.
+
+    Returns
+    -------
+    ReadResult
+    """
     paths = [str(p) for p in paths]
     if not paths:
         raise RoamstatError("no input file given; name one or more CSV or GPX files")
-    tables, rejected, files, notes = [], [], [], []
-    for path in paths:
-        table, rej, info = _read_one(path, cfg)
-        tables.append(table)
-        rejected.append(rej)
-        files.append(info)
-        notes.append(info.pop("tz_note"))
-    rows = pd.concat(tables, ignore_index=True) if len(tables) > 1 else tables[0]
-    rej = pd.concat(rejected, ignore_index=True) if len(rejected) > 1 else rejected[0]
+    if getattr(cfg, "x_col", None) and not getattr(cfg, "crs", None):
+        raise RoamstatError("--x-col/--y-col need --crs (the input's coordinate system, e.g. EPSG:32633)")
+    parts = [_read_file(path, cfg) for path in paths]
+    rows = _concat([p.rows for p in parts])
+    rejected = _concat([p.rejected for p in parts]) if any(len(p.rejected) for p in parts) else \
+        pd.DataFrame(columns=REJECTED_BASE)
+    files = [p.info for p in parts]
     n_read = int(sum(f["n_rows"] for f in files))
-    if n_read == 0:
-        raise RoamstatError(f"{', '.join(paths)}: no data rows (header only?); export the fixes with their data rows")
-    input_crs = cfg.crs if cfg.x_col and cfg.y_col else None
-    return ReadResult(rows, rej, files, n_read, input_crs, "; ".join(sorted(set(n for n in notes if n))))
+    if len(rows) == 0:
+        raise RoamstatError(f"{', '.join(paths)}: no data row could be read ({len(rejected)} rejected while reading); "
+                            "check the header and the delimiter with 'roamstat inspect'")
+    notes = sorted({p.tz_note for p in parts if p.tz_note})
+    input_crs = str(cfg.crs) if getattr(cfg, "x_col", None) else None
+    return ReadResult(rows, rejected, files, n_read, input_crs, "; ".join(notes))
 
 
-def _read_one(path: str, cfg: Config):
+def _concat(frames: list[pd.DataFrame]) -> pd.DataFrame:
+    return frames[0] if len(frames) == 1 else pd.concat(frames, ignore_index=True)
+
+
+def _read_file(path: str, cfg) -> _FileRead:
     p = Path(path)
-    if not p.exists():
-        raise RoamstatError(f"{path}: no such file; check the path")
-    if p.is_dir():
-        raise RoamstatError(f"{path}: is a folder; name the CSV or GPX files inside it")
-    try:
-        data = p.read_bytes()
-    except OSError as exc:
-        raise RoamstatError(f"{path}: cannot be read ({exc.strerror}); check its permissions") from None
-    info = {"path": path, "size_bytes": len(data), "sha256": hashlib.sha256(data).hexdigest(), "notes": []}
-    if not data.strip():
-        raise RoamstatError(f"{path}: the file is empty; export the fixes with a header row and data rows")
-    if p.suffix.lower() == ".gpx" or data.lstrip()[:5].lower() in (b"<?xml", b"<gpx "):
-        from roamstat.io.csvtext import decode
-
-        text, encoding, notes = decode(data, path)
-        table = read_gpx(text, path, p.stem)
-        table.columns = list(table.columns)
-        lines = np.arange(1, len(table) + 1)
-        info.update(encoding=encoding, delimiter=None, notes=notes + ["GPX: source_row is the track point's number"])
-        bad, repeats = [], []
-    elif p.suffix.lower() == ".parquet":
-        table, lines, encoding = _read_parquet(path)
-        info.update(encoding="parquet", delimiter=None)
-        bad, repeats = [], []
+    raw = load_bytes(p)
+    info = {"path": path, "size_bytes": len(raw), "sha256": hashlib.sha256(raw).hexdigest()}
+    if looks_like_gpx(p, raw):
+        gpx = read_gpx(raw, p)
+        values, lines = gpx.values, gpx.line_numbers
+        mapping = Mapping(columns=dict(gpx.columns))
+        info.update(encoding=gpx.encoding, delimiter=None, notes=["GPX track points; source_row is the <trkpt> line"])
+        delimiter, bad = None, None
     else:
-        parsed = read_delimited(data, path)
-        table, lines, bad, repeats = parsed.table, parsed.lines, parsed.bad_count, parsed.repeated_header
-        info.update(encoding=parsed.encoding, delimiter=parsed.delimiter, notes=parsed.notes)
-    header = [str(c) for c in table.columns]
-    mapping = detect_columns(header, _overrides(cfg), path)
-    projected = bool(cfg.x_col and cfg.y_col)
-    require_columns(mapping, header, path, projected)
-    info["columns"] = mapping
-    info["n_rows"] = int(len(table) + len(bad) + len(repeats))
-    default_id = p.stem
-    rows, tz_note = _standardise(table, lines, mapping, path, default_id, cfg, info["delimiter"])
-    info["tz_note"] = tz_note
-    rejected = _read_rejections(path, header, bad, repeats, mapping, default_id)
-    return rows, rejected, info
-
-
-def _overrides(cfg: Config) -> dict:
-    over = {"animal_id": cfg.id_col, "lat": cfg.lat_col, "lon": cfg.lon_col,
-            "time": cfg.time_col, "date": cfg.date_col, "x": cfg.x_col, "y": cfg.y_col}
-    if bool(cfg.x_col) != bool(cfg.y_col) or (cfg.x_col and not cfg.crs):
-        raise RoamstatError("projected input needs all three of --x-col, --y-col and --crs EPSG:NNNN")
-    return over
-
-
-def _read_parquet(path: str):
-    from roamstat.io.parquet import require_pyarrow
-
-    require_pyarrow()
-    table = pd.read_parquet(path)
-    for col in table.columns:
-        if isinstance(table[col].dtype, pd.DatetimeTZDtype):
-            table[col] = table[col].dt.tz_convert("UTC").dt.strftime("%Y-%m-%dT%H:%M:%S.%fZ")
-    table = table.astype(str).where(table.notna(), "")
-    return table, np.arange(2, len(table) + 2), "parquet"
-
-
-def _number(values: pd.Series, delimiter: str | None) -> pd.Series:
-    text = values.astype("string").str.strip()
-    if delimiter == ";":
-        text = text.str.replace(",", ".", regex=False)  # decimal commas go with semicolon files
-    return pd.to_numeric(text, errors="coerce").astype(float)
-
-
-def _standardise(table, lines, mapping, path, default_id, cfg, delimiter):
-    n = len(table)
-    out = pd.DataFrame(index=range(n))
-    out["animal_id"] = (table[mapping["animal_id"]].astype(str).str.strip().to_numpy()
-                        if "animal_id" in mapping else np.full(n, default_id, dtype=object))
-    if "time" in mapping:
-        time_text = table[mapping["time"]]
+        table = read_table(raw, p)
+        info.update(encoding=table.encoding, delimiter=table.delimiter, notes=list(table.notes))
+        values, lines, delimiter = table.values, table.line_numbers, table.delimiter
+        bad = _read_rejections(table)
+        if len(values) == 0:
+            raise RoamstatError(f"{path}: a header line but no data rows; export the fixes with their data rows")
+        if bad.all():
+            raise RoamstatError(
+                f"{path}: no data row has the header's {len(table.header)} fields (first data row, line "
+                f"{int(lines[0])}, has {int(table.field_counts[0])}); check the delimiter and the header line"
+            )
+        mapping = detect(values, cfg, p)
+        info["notes"] += mapping.notes
+    info["columns"] = mapping.describe()
+    info["n_rows"] = int(len(values))
+    if bad is not None and bad.any():
+        rejected = _rejected_rows(values[bad != ""], lines[(bad != "").to_numpy()], bad[bad != ""], mapping, path, p.stem,
+                                  table.extra_fields[(bad != "").to_numpy()])
+        keep = (bad == "").to_numpy()
+        values, lines = values[keep].reset_index(drop=True), lines[keep]
     else:
-        time_text = combine_date_time(table[mapping["date"]], table[mapping["time_of_day"]])
-    times, tz_note = parse_times(time_text.reset_index(drop=True), cfg.tz, f"{path}, column {mapping.get('time', mapping.get('date'))!r}")
+        rejected = pd.DataFrame(columns=REJECTED_BASE)
+    rows, tz_note = _standardise(values, lines, mapping, path, p.stem, cfg, delimiter, info["notes"])
+    return _FileRead(rows, rejected, info, tz_note)
+
+
+def _read_rejections(table) -> pd.Series:
+    """Reason code per data record: 'field_count', 'header_repeat' or '' (readable)."""
+    width = len(table.header)
+    codes = pd.Series(np.where(table.field_counts != width, "field_count", ""), dtype=object)
+    first = table.values.iloc[:, 0].str.strip().str.lower()
+    maybe = np.flatnonzero((first == table.header[0].lower()).to_numpy() & (codes == "").to_numpy())
+    header = [h.lower() for h in table.header]
+    for i in maybe:  # only rows whose first cell repeats the header's
+        if [str(v).strip().lower() for v in table.values.iloc[i].tolist()] == header:
+            codes.iloc[i] = "header_repeat"
+    return codes
+
+
+def _rejected_rows(values, lines, codes, mapping, path, stem, extra) -> pd.DataFrame:
+    n = len(values)
+    id_col = mapping.columns.get("animal_id")
+    animal = values[id_col].str.strip().to_numpy(dtype=object) if id_col else np.full(n, stem, dtype=object)
+    reason = np.where(codes.to_numpy() == "header_repeat", "a repeated header line",
+                      "the row has a different number of fields than the header line")
+    out = pd.DataFrame({"source_file": path, "source_row": np.asarray(lines, dtype=np.int64), "animal_id": animal,
+                        "reason_code": codes.to_numpy(dtype=object), "reason": reason})
+    for name in values.columns:
+        out[f"orig_{name}"] = values[name].to_numpy(dtype=object)
+    extra = extra.to_numpy(dtype=object)
+    if (extra != "").any():
+        out["extra_fields"] = extra  # fields beyond the header's, joined by the delimiter
+    return out
+
+
+def _standardise(values, lines, mapping: Mapping, path, stem, cfg, delimiter, notes):
+    cols = mapping.columns
+    n = len(values)
+    out = {}
+    if "animal_id" in cols:
+        ids = values[cols["animal_id"]].str.strip()
+        empty = ids == ""
+        if empty.any():
+            notes.append(f"{int(empty.sum())} rows without an animal id were given the file's name {stem!r}")
+            ids = ids.where(~empty, stem)
+        out["animal_id"] = ids.astype(object).to_numpy()
+    else:
+        out["animal_id"] = np.full(n, stem, dtype=object)
+        notes.append(f"no animal-id column: one animal named {stem!r}")
+    time_text = values[cols["time"]] if "time" in cols else None
+    if mapping.date_col:
+        time_text = combine_date_time(values[mapping.date_col], time_text) if time_text is not None \
+            else values[mapping.date_col]
+    where = f"{path}, column {mapping.describe()['time']!r}"
+    times, tz_note = parse_times(time_text, cfg.tz, where)
+    if n and times.isna().all():
+        example = time_text[time_text.str.strip() != ""].head(1).tolist()
+        raise RoamstatError(
+            f"{where}: no value could be read as a time (e.g. {example[0]!r}); roamstat reads ISO 8601 "
+            "(2024-05-01T06:00:00Z) or Unix epoch seconds; convert the column or name another with --time-col"
+            if example else f"{where}: the time column is empty; name the column holding the times with --time-col"
+        )
     out["time"] = times.to_numpy()
-    out["time"] = out["time"].astype("datetime64[ns, UTC]") if n else pd.Series([], dtype="datetime64[ns, UTC]")
-    if "x" in mapping:
-        out["x_in"] = _number(table[mapping["x"]], delimiter).to_numpy()
-        out["y_in"] = _number(table[mapping["y"]], delimiter).to_numpy()
-        out["lon"], out["lat"] = _unproject(out["x_in"].to_numpy(), out["y_in"].to_numpy(), cfg.crs)
+    decimal_comma = delimiter in (";", "\t")
+    if "x_in" in cols:
+        x = _number(values[cols["x_in"]], decimal_comma)
+        y = _number(values[cols["y_in"]], decimal_comma)
+        lon, lat = _unproject(x, y, cfg.crs)
+        out.update(lat=lat, lon=lon, x_in=x, y_in=y)
     else:
-        out["lat"] = _number(table[mapping["lat"]], delimiter).to_numpy()
-        out["lon"] = _number(table[mapping["lon"]], delimiter).to_numpy()
-    out["dop"] = _number(table[mapping["dop"]], delimiter).to_numpy() if "dop" in mapping else np.nan
-    out["n_sats"] = _number(table[mapping["n_sats"]], delimiter).to_numpy() if "n_sats" in mapping else np.nan
-    out["fix_type"] = _fix_type(table[mapping["fix_type"]]) if "fix_type" in mapping else pd.NA
-    out["quality"] = _quality(table, mapping)
-    out["source_file"] = path
+        out["lat"] = _number(values[cols["lat"]], decimal_comma)
+        out["lon"] = _number(values[cols["lon"]], decimal_comma)
+    out["dop"] = _number(values[cols["dop"]], decimal_comma) if "dop" in cols else np.full(n, np.nan)
+    out["n_sats"] = _number(values[cols["n_sats"]], decimal_comma) if "n_sats" in cols else np.full(n, np.nan)
+    out["fix_type"] = _fix_type(values[cols["fix_type"]]) if "fix_type" in cols else np.full(n, pd.NA, dtype=object)
+    out["quality"] = _quality(values[cols["quality"]]) if "quality" in cols else np.full(n, pd.NA, dtype=object)
+    out["source_file"] = np.full(n, path, dtype=object)
     out["source_row"] = np.asarray(lines, dtype=np.int64)
-    originals = table.copy()
-    originals.columns = [f"orig_{c}" for c in table.columns]
-    return pd.concat([out, originals.reset_index(drop=True)], axis=1), tz_note
+    rows = pd.DataFrame(out)
+    rows["time"] = rows["time"].astype("datetime64[ns, UTC]") if n else pd.Series([], dtype="datetime64[ns, UTC]")
+    originals = pd.DataFrame({f"orig_{c}": values[c].to_numpy() for c in values.columns})
+    return pd.concat([rows, originals], axis=1), tz_note
+
+
+def _number(text: pd.Series, decimal_comma: bool) -> np.ndarray:
+    """Floats from raw strings; NaN where a value is not a number."""
+    try:
+        return pd.to_numeric(text, errors="raise").to_numpy(dtype=float)
+    except (ValueError, TypeError):
+        pass  # some cells need care: spaces, decimal commas, junk
+    text = text.str.strip()
+    if decimal_comma:
+        text = text.str.replace(",", ".", regex=False)
+    return pd.to_numeric(text, errors="coerce").to_numpy(dtype=float)
 
 
 def _unproject(x, y, crs):
@@ -169,67 +231,63 @@ def _unproject(x, y, crs):
     try:
         source = CRS.from_user_input(crs)
     except CRSError:
-        raise RoamstatError(f"--crs {crs!r} is not a coordinate reference system pyproj knows; give e.g. EPSG:32633") from None
+        raise RoamstatError(f"--crs {crs!r} is not a coordinate system PROJ knows; give one such as EPSG:32633") from None
+    if not source.is_projected:
+        raise RoamstatError(f"--crs {crs!r} is not a projected (metric) system; with latitude and longitude "
+                            "use --lat-col/--lon-col instead of --x-col/--y-col")
     lon, lat = Transformer.from_crs(source, "EPSG:4326", always_xy=True).transform(x, y)
-    return np.asarray(lon, float), np.asarray(lat, float)
+    return np.asarray(lon, dtype=float), np.asarray(lat, dtype=float)
 
 
-def _fix_type(values: pd.Series) -> pd.Series:
-    """'2d' / '3d' from the many spellings collars use; other values kept lower-cased."""
-    text = values.astype("string").str.strip().str.lower()
-    text = text.str.replace(r"^(?:gps[\s_-]*)?([23])(?:[\s_-]*d(?:im(?:ensional)?)?)?$", r"\1d", regex=True)
-    return text.replace({"": pd.NA}).to_numpy(dtype=object)
+def _fix_type(values: pd.Series) -> np.ndarray:
+    """'2d' / '3d' from the spellings collars use (2, 3, 2D, 3-D, GPS 3D, 3D validated); others lower-cased."""
+    text = values.str.strip().str.lower()
+    text = text.str.replace(r"^(?:gps[\s_-]*)?([23])(?:[\s_-]*d(?:im(?:ensional)?)?)?\b.*$", r"\1d", regex=True)
+    return text.where(text != "", None).astype(object).to_numpy()
 
 
-_QUALITY_IN_JSON = re.compile(r'"?location_quality"?\s*:\s*"?([0-9A-Za-z]+)"?')
-
-
-def _quality(table: pd.DataFrame, mapping: dict):
-    """Location-quality class: a column of its own, or inside a Darwin Core dynamicProperties field."""
-    if "quality" in mapping:
-        return table[mapping["quality"]].astype("string").str.strip().str.upper().replace({"": pd.NA}).to_numpy(dtype=object)
-    props = next((c for c in table.columns if normalise(c) == "dynamicproperties"), None)
-    if props is None:
-        return pd.NA
-    found = table[props].astype("string").str.extract(_QUALITY_IN_JSON, expand=False)
-    return found.str.upper().to_numpy(dtype=object)
-
-
-def _read_rejections(path, header, bad, repeats, mapping, default_id) -> pd.DataFrame:
-    records = []
-    id_index = header.index(mapping["animal_id"]) if "animal_id" in mapping else None
-    for code, items in (("field_count", bad), ("header_repeat", repeats)):
-        for line, values in items:
-            row = {"source_file": path, "source_row": int(line),
-                   "animal_id": (values[id_index].strip() if id_index is not None and id_index < len(values) else default_id),
-                   "reason_code": code,
-                   "reason": READ_REASONS[code] + (f" ({len(values)} fields, header has {len(header)})" if code == "field_count" else "")}
-            for j, name in enumerate(header):
-                row[f"orig_{name}"] = values[j] if j < len(values) else ""
-            if len(values) > len(header):
-                row["orig_extra_fields"] = json.dumps(values[len(header):])
-            records.append(row)
-    return pd.DataFrame(records, columns=None if records else REJECTED_BASE)
+def _quality(values: pd.Series) -> np.ndarray:
+    """Location-quality class, upper-cased; from a Darwin Core dynamicProperties JSON text when needed."""
+    if values.str.contains("location_quality", regex=False).any():
+        values = values.str.extract(_QUALITY_IN_JSON, expand=False).fillna("")
+    text = values.str.strip().str.upper()
+    return text.where(text != "", None).astype(object).to_numpy()
 
 
 def describe_inputs(result: ReadResult) -> str:
-    """What was detected in each file and for each animal (``roamstat inspect``)."""
+    """What ``roamstat inspect`` prints about the inputs: mapping, dialect, animals, dates, intervals."""
     lines = []
     for info in result.files:
-        delim = {",": "comma", ";": "semicolon", "\t": "tab"}.get(info.get("delimiter"), info.get("delimiter") or "-")
-        lines.append(f"{info['path']}: {info['n_rows']} rows, {info['encoding']}, delimiter {delim}")
-        for key, col in info.get("columns", {}).items():
-            lines.append(f"  {key:<12} <- {col!r}")
+        delim = DELIMITER_NAMES.get(info.get("delimiter"), "none (GPX)") if info.get("delimiter") else "none (GPX)"
+        lines.append(f"{info['path']}: {info['n_rows']} records, encoding {info['encoding']}, delimiter {delim}")
+        for role, col in info.get("columns", {}).items():
+            lines.append(f"  {role:<10} <- {col}")
         for note in info.get("notes", []):
             lines.append(f"  note: {note}")
-    if result.tz_note:
-        lines.append(f"times: {result.tz_note}; everything inside roamstat is UTC")
+    lines.append(f"times: {result.tz_note or 'n/a'}; inside roamstat all times are UTC")
+    if result.input_crs:
+        lines.append(f"projected input in {result.input_crs}")
     rows = result.rows
-    lines.append(f"animals: {rows['animal_id'].nunique()}")
-    for aid, group in rows.groupby("animal_id", sort=True):
-        t = group["time"].dropna().sort_values()
-        dt = t.diff().dt.total_seconds().median() if len(t) > 1 else float("nan")
-        span = f"{t.iloc[0]:%Y-%m-%d} to {t.iloc[-1]:%Y-%m-%d}" if len(t) else "no readable times"
-        lines.append(f"  {str(aid)[:60]}: {len(group)} rows, {span}, median interval "
-                     f"{'n/a' if dt != dt else f'{dt / 3600:.3g} h'}")
+    lines.append(f"rows read {result.n_read}, rejected while reading {len(result.rejected)}; "
+                 f"animals: {rows['animal_id'].nunique()}")
+    ns = rows["time"].to_numpy(dtype="datetime64[ns]")
+    frame = pd.DataFrame({"a": rows["animal_id"].to_numpy(), "t": ns}).dropna().sort_values(["a", "t"], kind="stable")
+    gap = frame.groupby("a", sort=False)["t"].diff().dt.total_seconds()
+    stats = pd.DataFrame({"n": rows.groupby("animal_id").size()})
+    stats["first"] = frame.groupby("a")["t"].min()
+    stats["last"] = frame.groupby("a")["t"].max()
+    stats["median_s"] = gap.groupby(frame["a"]).median()
+    for aid, row in stats.sort_index().iterrows():
+        span = "no readable times" if pd.isna(row["first"]) else \
+            f"{row['first']:%Y-%m-%d %H:%M} to {row['last']:%Y-%m-%d %H:%M} UTC"
+        lines.append(f"  {str(aid)[:60]}: {int(row['n'])} rows, {span}, median interval {_duration(row['median_s'])}")
     return "\n".join(lines)
+
+
+def _duration(seconds) -> str:
+    if seconds is None or pd.isna(seconds):
+        return "n/a"
+    for unit, size in (("d", 86400), ("h", 3600), ("min", 60)):
+        if seconds >= size:
+            return f"{seconds / size:.3g} {unit}"
+    return f"{seconds:.3g} s"
