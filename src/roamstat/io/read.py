@@ -114,7 +114,7 @@ def _read_file(path: str, cfg) -> _FileRead:
         bad = _read_rejections(table)
         if len(values) == 0:
             raise RoamstatError(f"{path}: a header line but no data rows; export the fixes with their data rows")
-        if bad.all():
+        if (bad == "field_count").all():
             raise RoamstatError(
                 f"{path}: no data row has the header's {len(table.header)} fields (first data row, line "
                 f"{int(lines[0])}, has {int(table.field_counts[0])}); check the delimiter and the header line"
@@ -123,27 +123,26 @@ def _read_file(path: str, cfg) -> _FileRead:
         info["notes"] += mapping.notes
     info["columns"] = mapping.describe()
     info["n_rows"] = int(len(values))
-    if bad is not None and bad.any():
-        rejected = _rejected_rows(values[bad != ""], lines[(bad != "").to_numpy()], bad[bad != ""], mapping, path, p.stem,
-                                  table.extra_fields[(bad != "").to_numpy()])
-        keep = (bad == "").to_numpy()
-        values, lines = values[keep].reset_index(drop=True), lines[keep]
+    if bad is not None and (bad != "").any():
+        drop = bad != ""
+        rejected = _rejected_rows(values[drop], lines[drop], bad[drop], mapping, path, p.stem,
+                                  table.extra_fields[drop])
+        values, lines = values[~drop].reset_index(drop=True), lines[~drop]
     else:
         rejected = pd.DataFrame(columns=REJECTED_BASE)
     rows, tz_note = _standardise(values, lines, mapping, path, p.stem, cfg, delimiter, info["notes"])
     return _FileRead(rows, rejected, info, tz_note)
 
 
-def _read_rejections(table) -> pd.Series:
+def _read_rejections(table) -> np.ndarray:
     """Reason code per data record: 'field_count', 'header_repeat' or '' (readable)."""
-    width = len(table.header)
-    codes = pd.Series(np.where(table.field_counts != width, "field_count", ""), dtype=object)
-    first = table.values.iloc[:, 0].str.strip().str.lower()
-    maybe = np.flatnonzero((first == table.header[0].lower()).to_numpy() & (codes == "").to_numpy())
+    codes = np.where(table.field_counts != len(table.header), "field_count", "").astype(object)
+    codes_first, uniques = pd.factorize(table.values.iloc[:, 0])
+    same = [i for i, u in enumerate(uniques) if str(u).strip().lower() == table.header[0].lower()]
     header = [h.lower() for h in table.header]
-    for i in maybe:  # only rows whose first cell repeats the header's
+    for i in np.flatnonzero(np.isin(codes_first, same) & (codes == "")):  # first cell repeats the header's
         if [str(v).strip().lower() for v in table.values.iloc[i].tolist()] == header:
-            codes.iloc[i] = "header_repeat"
+            codes[i] = "header_repeat"
     return codes
 
 
@@ -151,10 +150,10 @@ def _rejected_rows(values, lines, codes, mapping, path, stem, extra) -> pd.DataF
     n = len(values)
     id_col = mapping.columns.get("animal_id")
     animal = values[id_col].str.strip().to_numpy(dtype=object) if id_col else np.full(n, stem, dtype=object)
-    reason = np.where(codes.to_numpy() == "header_repeat", "a repeated header line",
+    reason = np.where(codes == "header_repeat", "a repeated header line",
                       "the row has a different number of fields than the header line")
     out = pd.DataFrame({"source_file": path, "source_row": np.asarray(lines, dtype=np.int64), "animal_id": animal,
-                        "reason_code": codes.to_numpy(dtype=object), "reason": reason})
+                        "reason_code": codes, "reason": reason})
     for name in values.columns:
         out[f"orig_{name}"] = values[name].to_numpy(dtype=object)
     extra = extra.to_numpy(dtype=object)
@@ -168,14 +167,14 @@ def _standardise(values, lines, mapping: Mapping, path, stem, cfg, delimiter, no
     n = len(values)
     out = {}
     if "animal_id" in cols:
-        ids = values[cols["animal_id"]].str.strip()
+        ids = _by_unique(values[cols["animal_id"]], lambda u: u.str.strip())
         empty = ids == ""
         if empty.any():
             notes.append(f"{int(empty.sum())} rows without an animal id were given the file's name {stem!r}")
             ids = ids.where(~empty, stem)
-        out["animal_id"] = ids.astype(object).to_numpy()
+        out["animal_id"] = ids
     else:
-        out["animal_id"] = np.full(n, stem, dtype=object)
+        out["animal_id"] = pd.Series(stem, index=values.index, dtype=values.dtypes.iloc[0])
         notes.append(f"no animal-id column: one animal named {stem!r}")
     time_text = values[cols["time"]] if "time" in cols else None
     if mapping.date_col:
@@ -190,7 +189,7 @@ def _standardise(values, lines, mapping: Mapping, path, stem, cfg, delimiter, no
             "(2024-05-01T06:00:00Z) or Unix epoch seconds; convert the column or name another with --time-col"
             if example else f"{where}: the time column is empty; name the column holding the times with --time-col"
         )
-    out["time"] = times.to_numpy()
+    out["time"] = times.astype("datetime64[ns, UTC]").set_axis(values.index)
     decimal_comma = delimiter in (";", "\t")
     if "x_in" in cols:
         x = _number(values[cols["x_in"]], decimal_comma)
@@ -200,28 +199,50 @@ def _standardise(values, lines, mapping: Mapping, path, stem, cfg, delimiter, no
     else:
         out["lat"] = _number(values[cols["lat"]], decimal_comma)
         out["lon"] = _number(values[cols["lon"]], decimal_comma)
-    out["dop"] = _number(values[cols["dop"]], decimal_comma) if "dop" in cols else np.full(n, np.nan)
-    out["n_sats"] = _number(values[cols["n_sats"]], decimal_comma) if "n_sats" in cols else np.full(n, np.nan)
-    out["fix_type"] = _fix_type(values[cols["fix_type"]]) if "fix_type" in cols else np.full(n, pd.NA, dtype=object)
-    out["quality"] = _quality(values[cols["quality"]]) if "quality" in cols else np.full(n, pd.NA, dtype=object)
-    out["source_file"] = np.full(n, path, dtype=object)
+    nan = np.full(n, np.nan)
+    none = pd.Series(None, index=values.index, dtype=object)
+    out["dop"] = _number(values[cols["dop"]], decimal_comma) if "dop" in cols else nan
+    out["n_sats"] = _number(values[cols["n_sats"]], decimal_comma) if "n_sats" in cols else nan
+    out["fix_type"] = _by_unique(values[cols["fix_type"]], _fix_type) if "fix_type" in cols else none
+    out["quality"] = _by_unique(values[cols["quality"]], _quality) if "quality" in cols else none
+    out["source_file"] = pd.Series(path, index=values.index, dtype=object)
     out["source_row"] = np.asarray(lines, dtype=np.int64)
-    rows = pd.DataFrame(out)
-    rows["time"] = rows["time"].astype("datetime64[ns, UTC]") if n else pd.Series([], dtype="datetime64[ns, UTC]")
-    originals = pd.DataFrame({f"orig_{c}": values[c].to_numpy() for c in values.columns})
-    return pd.concat([rows, originals], axis=1), tz_note
+    for c in values.columns:
+        out[f"orig_{c}"] = values[c]
+    return pd.DataFrame(out, index=values.index, copy=False), tz_note
+
+
+def _by_unique(values: pd.Series, transform) -> pd.Series:
+    """Apply a string transform to the distinct values only (collar columns repeat a few values)."""
+    codes, uniques = pd.factorize(values, use_na_sentinel=True)
+    done = transform(pd.Series(uniques, dtype=object)).to_numpy(dtype=object)
+    out = np.where(codes >= 0, done[np.maximum(codes, 0)], None) if len(done) else np.full(len(values), None)
+    return pd.Series(out, index=values.index, dtype=object)
 
 
 def _number(text: pd.Series, decimal_comma: bool) -> np.ndarray:
     """Floats from raw strings; NaN where a value is not a number."""
     try:
-        return pd.to_numeric(text, errors="raise").to_numpy(dtype=float)
+        return _clean_floats(text)
     except (ValueError, TypeError):
-        pass  # some cells need care: spaces, decimal commas, junk
+        pass  # some cells need care: blanks, spaces, decimal commas, junk
     text = text.str.strip()
     if decimal_comma:
         text = text.str.replace(",", ".", regex=False)
     return pd.to_numeric(text, errors="coerce").to_numpy(dtype=float)
+
+
+def _clean_floats(text: pd.Series) -> np.ndarray:
+    """Strict conversion of a column where every cell is a number (the common case, kept fast)."""
+    if hasattr(text.array, "__arrow_array__"):
+        import pyarrow as pa
+        import pyarrow.compute as pc
+
+        try:
+            return pc.cast(pa.array(text.array), pa.float64()).to_numpy(zero_copy_only=False)
+        except pa.ArrowInvalid as exc:
+            raise ValueError(str(exc)) from None
+    return text.astype(float).to_numpy()
 
 
 def _unproject(x, y, crs):
@@ -239,19 +260,20 @@ def _unproject(x, y, crs):
     return np.asarray(lon, dtype=float), np.asarray(lat, dtype=float)
 
 
-def _fix_type(values: pd.Series) -> np.ndarray:
+def _fix_type(values: pd.Series) -> pd.Series:
     """'2d' / '3d' from the spellings collars use (2, 3, 2D, 3-D, GPS 3D, 3D validated); others lower-cased."""
-    text = values.str.strip().str.lower()
+    text = values.astype(str).str.strip().str.lower()
     text = text.str.replace(r"^(?:gps[\s_-]*)?([23])(?:[\s_-]*d(?:im(?:ensional)?)?)?\b.*$", r"\1d", regex=True)
-    return text.where(text != "", None).astype(object).to_numpy()
+    return text.where(text != "", None)
 
 
-def _quality(values: pd.Series) -> np.ndarray:
+def _quality(values: pd.Series) -> pd.Series:
     """Location-quality class, upper-cased; from a Darwin Core dynamicProperties JSON text when needed."""
+    values = values.astype(str)
     if values.str.contains("location_quality", regex=False).any():
         values = values.str.extract(_QUALITY_IN_JSON, expand=False).fillna("")
     text = values.str.strip().str.upper()
-    return text.where(text != "", None).astype(object).to_numpy()
+    return text.where(text != "", None)
 
 
 def describe_inputs(result: ReadResult) -> str:
