@@ -27,12 +27,12 @@ BAND = stats.binom.interval(0.99, N_ANIMALS, ALPHA)  # 99 % band of the count of
 STEP, TURN = stats.gamma(2.0, scale=30.0), stats.vonmises(1.5)
 
 
-def deployment(make_track, n_animals, cfg, seed, fitted):
+def deployment(simulate_track, n_animals, cfg, seed, fitted):
     """Null-test table of simulated animals; fits are the true models or fitted by models.fit_animal."""
     parts = []
     for i in range(n_animals):
         aid = f"sim-{i:03d}"
-        fixes, steps = make_track(animal_rng(seed, aid, "track"))
+        fixes, steps = simulate_track(animal_rng(seed, aid, "track"))
         if fitted:
             fits = fit_animal(steps, cfg, animal_rng(seed, aid, "fit"))
         else:
