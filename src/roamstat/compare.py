@@ -253,7 +253,7 @@ def _observed(fixes_a, steps_a, nominal_dt_s, cfg) -> tuple[dict, str]:
     obs = observed_curve(fixes_a, float(nominal_dt_s))
     obs["note"] = f"{obs['n_dropped']} fixes without time or coordinates ignored" if obs["n_dropped"] else ""
     if n_obs_steps < cfg.min_steps_test:
-        return obs, f"track too short to test: {n_obs_steps} steps, fewer than {cfg.min_steps_test} (--min-steps-test)"
+        return obs, f"track too short to test: {n_obs_steps} steps, fewer than the {cfg.min_steps_test} needed"
     if obs["n_steps"] < 1:
         return obs, "the fixes span less than one nominal interval"
     return obs, ""
