@@ -135,7 +135,7 @@ def test_short_tracks_and_missing_models_are_insufficient_with_a_note():
     fits = fits_double(gamma_steps(), von_mises_turns(), step_values=steps["step_m"], turn_values=[0.1])
     rows, curves = compare.test_animal(fixes, steps, fits, 3600.0, cfg, np.random.default_rng(7))
     assert rows["p_value"].isna().all() and curves == {}
-    assert rows["note"].str.contains("fewer than 20").all()
+    assert rows["note"].str.contains("fewer than the 20 needed").all()
     table = compare.finalise(rows.assign(animal_id="short"), cfg)
     assert (table["verdict"] == "insufficient").all()
     one_fix, _ = crw_track(1, stats.gamma(2.0), stats.vonmises(1.0), np.random.default_rng(8))
