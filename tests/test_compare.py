@@ -102,6 +102,11 @@ def test_gaps_are_walked_and_fixes_map_to_nominal_step_indices():
     np.testing.assert_array_equal(obs["idx"], hours)
     np.testing.assert_allclose(obs["nsd_m2"], x ** 2 + y ** 2)
     assert obs["net_m"] == pytest.approx(math.hypot(x[-1], y[-1]))
+    # rows out of time order and a fix without coordinates: sorted, and the dropped fix counted
+    shuffled = pd.concat([fixes.iloc[::-1], fixes.iloc[:1].assign(x_m=np.nan)], ignore_index=True)
+    again = compare.observed_curve(shuffled, 3600.0)
+    np.testing.assert_array_equal(again["idx"], hours)
+    assert again["n_dropped"] == 1 and again["net_m"] == obs["net_m"]
     thin = compare.observed_curve(fixes, 3600.0, max_points=7)
     assert thin["idx"].size == 7 and thin["idx"][0] == 0 and thin["idx"][-1] == 79
 

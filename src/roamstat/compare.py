@@ -171,18 +171,22 @@ def observed_curve(fixes_a: pd.DataFrame, nominal_dt_s: float, max_points: int =
     x = pd.to_numeric(fixes_a["x_m"], errors="coerce").to_numpy(dtype=float)
     y = pd.to_numeric(fixes_a["y_m"], errors="coerce").to_numpy(dtype=float)
     good = t.notna().to_numpy() & np.isfinite(x) & np.isfinite(y)
-    order = np.argsort(t[good].to_numpy(), kind="stable")
-    t, x, y = t[good].iloc[order], x[good][order], y[good][order]
-    t_s = ((t - t.iloc[0]) / pd.Timedelta(seconds=1)).to_numpy(dtype=float) if len(t) else np.empty(0)
-    nsd = (x - x[0]) ** 2 + (y - y[0]) ** 2 if len(t) else np.empty(0)
-    step = np.rint(t_s / nominal_dt_s).astype(np.int64) if len(t) else np.empty(0, np.int64)
+    n_dropped = int(np.count_nonzero(~good))
+    if not good.any():
+        return {"n_steps": 0, "idx": np.empty(0, np.int64), "t_s": np.empty(0), "nsd_m2": np.empty(0),
+                "net_m": math.nan, "n_dropped": n_dropped}
+    t = t[good]
+    t_s = ((t - t.min()) / pd.Timedelta(seconds=1)).to_numpy(dtype=float)
+    order = np.argsort(t_s, kind="stable")
+    t_s, x, y = t_s[order], x[good][order], y[good][order]
+    nsd = (x - x[0]) ** 2 + (y - y[0]) ** 2
+    step = np.rint(t_s / nominal_dt_s).astype(np.int64)
     # the last fix at each step index (so the last index is the last fix)
-    keep = np.flatnonzero(np.r_[step[1:] != step[:-1], True]) if len(t) else np.empty(0, np.int64)
+    keep = np.flatnonzero(np.r_[step[1:] != step[:-1], True])
     if keep.size > max_points:
         keep = keep[np.unique(np.rint(np.linspace(0, keep.size - 1, max_points)).astype(np.int64))]
-    return {"n_steps": int(step[-1]) if len(t) else 0, "idx": step[keep], "t_s": t_s[keep],
-            "nsd_m2": nsd[keep], "net_m": float(math.sqrt(nsd[-1])) if len(t) else math.nan,
-            "n_dropped": int(np.count_nonzero(~good))}
+    return {"n_steps": int(step[-1]), "idx": step[keep], "t_s": t_s[keep], "nsd_m2": nsd[keep],
+            "net_m": float(math.sqrt(nsd[-1])), "n_dropped": n_dropped}
 
 
 def test_animal(fixes_a: pd.DataFrame, steps_a: pd.DataFrame, fits, nominal_dt_s: float, cfg,
@@ -252,6 +256,8 @@ def _observed(fixes_a, steps_a, nominal_dt_s, cfg) -> tuple[dict, str]:
         return {}, "fewer than two projected fixes"
     obs = observed_curve(fixes_a, float(nominal_dt_s))
     obs["note"] = f"{obs['n_dropped']} fixes without time or coordinates ignored" if obs["n_dropped"] else ""
+    if len(fixes_a) - obs["n_dropped"] < 2:
+        return obs, "fewer than two fixes with time and coordinates"
     if n_obs_steps < cfg.min_steps_test:
         return obs, f"track too short to test: {n_obs_steps} steps, fewer than the {cfg.min_steps_test} needed"
     if obs["n_steps"] < 1:
