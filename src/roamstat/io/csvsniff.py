@@ -189,7 +189,7 @@ def read_table(raw: bytes, path: Path) -> RawTable:
     width = int(scan.field_counts.max())
     frame = None
     if scan.well_formed:
-        frame = _read_fast(data, delim, encoding, width, path)
+        frame = _read_fast(data, delim, encoding, width, path, term)
         if frame is not None and not _agrees(frame, scan):
             frame = None
     if frame is None:
@@ -202,12 +202,15 @@ def read_table(raw: bytes, path: Path) -> RawTable:
     return _split_header(frame, counts, line_numbers, encoding, delim, notes, path)
 
 
-def _read_fast(data: bytes, delim: str, encoding: str, width: int, path: Path) -> pd.DataFrame | None:
+def _read_fast(data: bytes, delim: str, encoding: str, width: int, path: Path, term: int) -> pd.DataFrame | None:
+    # Bare-CR files name their terminator: left to guess, the C parser drops the empty first
+    # field of a record that follows a blank line (pandas 3.1).
     try:
         return pd.read_csv(
             io.BytesIO(data), sep=delim, header=None, names=range(width), dtype=str,
             keep_default_na=False, na_filter=False, engine="c", encoding=encoding,
             quotechar='"', doublequote=True, skip_blank_lines=True,
+            lineterminator="\r" if term == _CR else None,
         )
     except pd.errors.ParserError:
         return None  # the scan and the parser disagree: take the careful path

@@ -73,7 +73,9 @@ def _iso(text: pd.Series, utc: bool) -> pd.Series:
         retry = pd.to_datetime(_normalise(text[failed]), format="ISO8601", utc=utc, errors="coerce")
         parsed = parsed.astype(retry.dtype) if len(parsed) and parsed.isna().all() else parsed
         parsed[failed] = retry
-    return parsed
+    # Years the nanosecond clock cannot hold (e.g. '-33.5' read as year -33) become NaT: bad_time.
+    parsed = parsed.where((parsed.dt.year >= 1678) & (parsed.dt.year <= 2261))
+    return parsed.astype("datetime64[ns, UTC]" if utc else "datetime64[ns]")
 
 
 def _looks_numeric(text: pd.Series) -> bool:
