@@ -41,9 +41,10 @@ def parse_times(values: pd.Series, tz: str, where: str) -> tuple[pd.Series, str]
         except Exception as exc:  # unknown zone name
             raise RoamstatError(f"--tz {tz!r} is not a time zone name (e.g. UTC, Europe/Oslo): {exc}") from None
     if not naive_zone:
-        offsets = text.str.contains(_OFFSET, regex=True, na=False) if len(text) <= 200_000 else None
-        naive_present = None if offsets is None else bool((present & ~offsets).any())
-        note = "times without offset read as UTC" if naive_present in (None, True) else "offsets in the data"
+        # Most exports end every time with Z: a cheap test first, the full pattern only otherwise.
+        zulu = bool(text[present].str.endswith("Z").all())
+        naive_present = not zulu and bool((present & ~text.str.contains(_OFFSET, regex=True, na=False)).any())
+        note = "times without offset read as UTC" if naive_present else "offsets in the data"
     else:
         note = "offsets in the data" if not naive.any() else f"times without offset read as {tz}"
     return out, note
