@@ -90,6 +90,9 @@ def value_kind(values: pd.Series) -> str:
 def detect(values: pd.DataFrame, cfg, path) -> Mapping:
     """Find every role's column in one file, honouring the overrides in ``cfg``."""
     names = list(values.columns)
+    if len(names) == 1:
+        raise RoamstatError(f"{path}: the header {names[0][:80]!r} splits into one column only; roamstat reads "
+                            "comma, semicolon or tab delimited files: export the file with one of these")
     by_norm: dict[str, str] = {}
     for name in names:
         by_norm.setdefault(norm(name), name)
@@ -190,6 +193,10 @@ def _detect_time(values, cfg, path, names, pick, override, mapping: Mapping) -> 
     tod = _first_of_kind(values, TIME_OF_DAY, pick, {"tod"}, exclude={date})
     if date and tod:
         cols["time"], mapping.date_col = tod, date
+        return
+    named = pick(TIME_FULL)
+    if named:  # a time column by name whose values are empty or unusual: the reader says what is wrong
+        cols["time"] = named
         return
     raise RoamstatError(
         f"{path}: no time column found among {_listing(names)}; name it with --time-col "
