@@ -218,6 +218,19 @@ def _concat(frames: list[pd.DataFrame]) -> pd.DataFrame:
     return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
 
 
+#: Everything a run may leave in its folder; a run interrupted before its manifest leaves only these.
+OUTPUT_NAMES = {f"{stem}.{ext}" for stem in ("fixes", "rejected", "steps", "summary", "fits", "null_tests",
+                                             "residency", "ranges") for ext in ("csv", "parquet")} | \
+    {"ranges.geojson", "report.html", "figures", MANIFEST}
+
+
+def _earlier_output(out_dir: Path) -> bool:
+    """An empty folder, one with a manifest, or one holding only roamstat outputs (an interrupted run)."""
+    if (out_dir / MANIFEST).is_file():
+        return True
+    return all(p.name in OUTPUT_NAMES or (p.name.startswith(".") and p.name.endswith(".part")) for p in out_dir.iterdir())
+
+
 def prepare_out_dir(out_dir: Path, inputs, force: bool) -> Path:
     """Refuse an output folder that is an input, or holds foreign files (unless --force)."""
     out_dir = Path(out_dir)
@@ -226,7 +239,7 @@ def prepare_out_dir(out_dir: Path, inputs, force: bool) -> Path:
         raise RoamstatError(f"--out {out_dir} is one of the input files; choose a new folder for the outputs")
     if out_dir.exists() and not out_dir.is_dir():
         raise RoamstatError(f"--out {out_dir} exists and is not a folder; choose a new folder for the outputs")
-    if out_dir.is_dir() and any(out_dir.iterdir()) and not (out_dir / MANIFEST).is_file() and not force:
+    if out_dir.is_dir() and not _earlier_output(out_dir) and not force:
         raise RoamstatError(
             f"--out {out_dir} is a non-empty folder that holds no earlier roamstat output; "
             "choose a new or empty folder, or add --force to write into it"

@@ -24,6 +24,7 @@ from __future__ import annotations
 
 import csv
 import io
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -75,7 +76,7 @@ def decode_plan(data: bytes, path: Path) -> tuple[bytes, str, list[str]]:
             except UnicodeDecodeError as exc:
                 raise RoamstatError(f"{path} starts like UTF-16 text but is not valid UTF-16 (byte {exc.start}); "
                                     "save it again as UTF-8 CSV") from exc
-            return text.encode("utf-8"), "utf-16", ["UTF-16 text converted to UTF-8"]
+            return text.encode("utf-8"), "utf-8", [f"{name.upper()} text (byte-order mark) converted to UTF-8"]
     if b"\x00" in data:
         raise RoamstatError(f"{path} holds NUL bytes, so it is not a text (CSV) file; "
                             "export it from the spreadsheet or collar software as CSV")
@@ -181,6 +182,8 @@ def read_table(raw: bytes, path: Path) -> RawTable:
     if not raw.strip():
         raise RoamstatError(f"{path} is empty; give a file with a header line and data rows")
     data, encoding, notes = decode_plan(raw, path)
+    if not data.strip():  # e.g. a byte-order mark and nothing else
+        raise RoamstatError(f"{path} is empty; give a file with a header line and data rows")
     term, ending = line_terminator(data)
     if ending == "CR":
         notes.append("bare-CR line endings")
@@ -243,10 +246,24 @@ def _read_slow(data: bytes, delim: str, encoding: str, path: Path):
             lines.append(first_line)
     except csv.Error as exc:
         raise RoamstatError(f"{path} line {previous + 1}: {exc}; fix the quoting there") from exc
+    if lines and text.count('"') % 2:
+        _refuse_open_quote(text, lines[-1], delim, path)
     counts = np.array([len(r) for r in rows], dtype=np.int64)
     width = int(counts.max()) if counts.size else 1
     frame = pd.DataFrame([r + [""] * (width - len(r)) for r in rows], columns=range(width), dtype=str)
     return frame, np.array(lines, dtype=np.int64), counts
+
+
+def _refuse_open_quote(text: str, last_start: int, delim: str, path: Path) -> None:
+    """A quote never closed makes the lenient reader swallow the rest of the file into one value: refuse it."""
+    tail = "\n".join(re.split(r"\r\n|\r|\n", text)[last_start - 1:])  # the line ends csv counts
+    try:
+        for _ in csv.reader(io.StringIO(tail, newline=""), delimiter=delim, quotechar='"', strict=True):
+            pass
+    except csv.Error as exc:
+        if "unexpected end of data" in str(exc):
+            raise RoamstatError(f"{path} line {last_start}: a quoted field opened in this record is never closed, "
+                                "so the rest of the file would be read as one value; fix the quoting there") from None
 
 
 def _split_header(frame, counts, line_numbers, encoding, delim, notes, path) -> RawTable:
