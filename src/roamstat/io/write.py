@@ -98,11 +98,23 @@ def _time_unit(values: np.ndarray) -> str:
 def write_csv(table: pd.DataFrame, path: str | os.PathLike) -> Path:
     """Write a table as UTF-8 CSV, atomically, times in ISO 8601, formulas neutralised.
 
-    Floats are written with repr precision so that two runs with the same
-    inputs and seed give byte-identical files.
+    Arrow's C++ writer does the formatting (several times faster than
+    pandas on million-row tables): text is quoted, floats are written in the
+    shortest form that reads back to the same number, booleans as
+    ``true``/``false``.  Two runs with the same inputs and seed give
+    byte-identical files.
     """
-    text = spreadsheet_safe(format_times(table)).to_csv(index=False, lineterminator="\n")
-    return atomic_write(path, text)
+    import pyarrow as pa
+    import pyarrow.csv as pa_csv
+
+    ready = spreadsheet_safe(format_times(table))
+    for name in ready.columns:
+        if ready[name].dtype == object:
+            ready[name] = ready[name].astype("string")  # mixed Python objects as their text
+    arrow = pa.Table.from_pandas(ready, preserve_index=False)
+    sink = pa.BufferOutputStream()
+    pa_csv.write_csv(arrow, sink, pa_csv.WriteOptions(quoting_style="needed"))
+    return atomic_write(path, sink.getvalue().to_pybytes())
 
 
 def write_json(obj, path: str | os.PathLike) -> Path:
