@@ -99,3 +99,26 @@ def test_unexpected_errors_point_to_debug(sample_csv, tmp_path, capsys, monkeypa
     assert "--debug" in err and "Traceback" not in err
     with pytest.raises(ZeroDivisionError):
         main(["--debug", "steps", str(sample_csv), "--out", str(tmp_path / "o2")])
+
+
+def test_parquet_input_and_output_match_csv(sample_csv, tmp_path, capsys):
+    """The same fixes as Parquet (open format, via pyarrow) give the same steps as the CSV."""
+    frame = pd.read_csv(sample_csv)
+    frame["timestamp"] = pd.to_datetime(frame["timestamp"], utc=True)
+    parquet = tmp_path / "collars.parquet"
+    frame.to_parquet(parquet)
+    code, _, err = run_cli("steps", parquet, "--out", tmp_path / "pq", "--format", "parquet", "--quiet", capsys=capsys)
+    assert code == 0, err
+    code, _, err = run_cli("steps", sample_csv, "--out", tmp_path / "csv", "--quiet", capsys=capsys)
+    assert code == 0, err
+    from_parquet = pd.read_parquet(tmp_path / "pq" / "steps.parquet")
+    from_csv = pd.read_csv(tmp_path / "csv" / "steps.csv")
+    assert len(from_parquet) == len(from_csv)
+    assert (from_parquet["step_m"].to_numpy() - from_csv["step_m"].to_numpy()).max() < 1e-9
+
+
+def test_screening_option_without_its_column_is_an_error(tmp_path, capsys):
+    path = tmp_path / "no_dop.csv"
+    path.write_text("id,time,lat,lon\nA,2024-01-01T00:00Z,60,10\nA,2024-01-01T01:00Z,60.01,10\n")
+    code, _, err = run_cli("steps", path, "--out", tmp_path / "o", "--max-dop", "5", capsys=capsys)
+    assert_user_error(code, err, "--max-dop", "no_dop.csv")

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import argparse
 import sys
+import warnings
 from collections import Counter
 
 from roamstat import __version__
@@ -134,6 +135,10 @@ def main(argv: list[str] | None = None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
     parser = build_parser()
     args = parser.parse_args(argv)
+    if not args.debug:
+        # Edge cases (a zero-variance fit, a divergent moment) are handled where they arise and
+        # reported in the tables' notes; numpy's floating-point chatter would only alarm users.
+        warnings.simplefilter("ignore", RuntimeWarning)
     try:
         return _dispatch(args, argv)
     except RoamstatError as exc:

@@ -310,7 +310,7 @@ def fixes_for_output(fixes: pd.DataFrame, cfg: Config, read: ReadResult | None =
 
         return mask_fixes(fixes, cfg)  # also drops every original column: raw text can spell positions
     if read is not None:
-        parsed = {f"orig_{col}" for info in read.files for col in info.get("columns", {}).values()}
+        parsed = {f"orig_{col}" for info in read.files for col in info.get("parsed_columns", [])}
         fixes = fixes.drop(columns=[c for c in fixes.columns if c in parsed])
         rename = {c: c[5:] for c in fixes.columns if str(c).startswith("orig_") and c[5:] not in fixes.columns}
         fixes = fixes.rename(columns=rename)

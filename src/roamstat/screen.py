@@ -138,6 +138,7 @@ def screen(rows: pd.DataFrame, cfg: Config) -> tuple[pd.DataFrame, pd.DataFrame]
     if "duplicate_time" not in off:
         mask, text = _duplicate_times(rows, _open(reason))
         reject("duplicate_time", mask, text)
+    _require_column(rows, cfg)
     if cfg.max_dop is not None:
         dop = rows["dop"].to_numpy(dtype=float)
         reject("high_dop", dop > cfg.max_dop, lambda hit: [f" (DOP {v:.3g})" for v in dop[hit]])
@@ -222,6 +223,27 @@ def _duplicate_times(rows: pd.DataFrame, live: np.ndarray):
     text[pos] = [f" (kept row {r} of {f}: {'lower DOP' if d else 'first row'})"
                  for r, f, d in zip(rows_kept, files_kept, with_dop)]
     return mask, text
+
+
+#: option -> (its value in cfg, the column it needs, how users name that column)
+_NEEDS_COLUMN = {
+    "--max-dop": ("max_dop", "dop", "a DOP, HDOP or PDOP column"),
+    "--require-3d": ("require_3d", "fix_type", "a fix-type column (fix_type, fix, navigation)"),
+    "--min-quality": ("min_quality", "quality", "a location-quality column (quality, lc, location_class)"),
+}
+
+
+def _require_column(rows: pd.DataFrame, cfg: Config) -> None:
+    """An option that screens on a column the input lacks would silently do nothing: say so."""
+    for option, (field, column, described) in _NEEDS_COLUMN.items():
+        value = getattr(cfg, field)
+        if value in (None, False) or rows[column].notna().any():
+            continue
+        files = ", ".join(sorted(set(rows["source_file"].astype(str))))[:200]
+        raise RoamstatError(
+            f"{option}: {files} has no values in {described}; check what 'roamstat inspect' detects, "
+            f"rename the column, or drop {option}"
+        )
 
 
 def _low_quality(rows: pd.DataFrame, min_quality: str):

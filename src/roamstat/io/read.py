@@ -93,6 +93,28 @@ def read_inputs(paths, cfg) -> ReadResult:
     return ReadResult(rows, rejected, files, n_read, input_crs, "; ".join(notes))
 
 
+def _parquet_values(raw: bytes, path: str) -> pd.DataFrame:
+    """A Parquet table as the same all-text table the CSV reader gives (times as ISO 8601)."""
+    import io
+
+    import pyarrow as pa
+
+    try:
+        frame = pd.read_parquet(io.BytesIO(raw))
+    except (pa.ArrowInvalid, OSError) as exc:
+        raise RoamstatError(f"{path}: not a readable Parquet file ({exc}); check it was written completely") from None
+    if len(frame) == 0:
+        raise RoamstatError(f"{path}: the Parquet file has no rows; export the fixes with their data rows")
+    text = pd.DataFrame(index=frame.index)
+    for name in frame.columns:
+        column = frame[name]
+        if pd.api.types.is_datetime64_any_dtype(column):
+            utc = column.dt.tz_localize("UTC") if column.dt.tz is None else column.dt.tz_convert("UTC")
+            column = utc.dt.strftime("%Y-%m-%dT%H:%M:%S.%fZ")
+        text[str(name)] = column.astype("string").fillna("").astype(object)
+    return text.reset_index(drop=True)
+
+
 def _concat(frames: list[pd.DataFrame]) -> pd.DataFrame:
     return frames[0] if len(frames) == 1 else pd.concat(frames, ignore_index=True)
 
@@ -106,6 +128,13 @@ def _read_file(path: str, cfg) -> _FileRead:
         values, lines = gpx.values, gpx.line_numbers
         mapping = Mapping(columns=dict(gpx.columns))
         info.update(encoding=gpx.encoding, delimiter=None, notes=["GPX track points; source_row is the <trkpt> line"])
+        delimiter, bad = None, None
+    elif p.suffix.lower() == ".parquet":
+        values = _parquet_values(raw, path)
+        lines = np.arange(1, len(values) + 1)
+        mapping = detect(values, cfg, p)
+        info.update(encoding="parquet", delimiter=None,
+                    notes=["Parquet: source_row is the record's position"] + mapping.notes)
         delimiter, bad = None, None
     else:
         table = read_table(raw, p)
@@ -122,6 +151,7 @@ def _read_file(path: str, cfg) -> _FileRead:
         mapping = detect(values, cfg, p)
         info["notes"] += mapping.notes
     info["columns"] = mapping.describe()
+    info["parsed_columns"] = [*mapping.columns.values(), *([mapping.date_col] if mapping.date_col else [])]
     info["n_rows"] = int(len(values))
     if bad is not None and (bad != "").any():
         drop = bad != ""
