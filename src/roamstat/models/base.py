@@ -21,6 +21,8 @@ from abc import ABC, abstractmethod
 
 import numpy as np
 
+from roamstat.track import wrap_angle  # noqa: F401  (one wrap for the whole project)
+
 
 class FittedModel(ABC):
     """A maximum-likelihood fit of one family to one set of observations.
@@ -119,8 +121,3 @@ class TurnModel(FittedModel):
 def plain_params(**values) -> dict:
     """Parameters as a dict of plain Python floats (JSON-ready, deterministic)."""
     return {key: float(value) for key, value in values.items()}
-
-
-def wrap_angle(a):
-    """Wrap angles into (-pi, pi] (the turn convention of the data contract)."""
-    return np.pi - np.mod(np.pi - np.asarray(a, dtype=float), 2.0 * np.pi)
