@@ -54,6 +54,8 @@ N_PARAMS = {"sedentary": 1, "resident": 2, "disperser": 3, "migrant": 5, "nomad"
 MIN_FIXES = 20  # below this the five curves cannot be told apart (judgement, no source)
 MAX_FIT_POINTS = 5000  # longer series are thinned evenly in time for the fits (speed)
 EXPLORE_POINTS = 400  # starting values are screened on this many points of longer series
+EXPLORE_NFEV = 8  # function evaluations a start gets before the best are polished
+POLISHED_STARTS = 3
 MAX_CURVE_POINTS = 1500  # points handed to the report figure
 WEAK_DELTA = 2.0  # delta AIC below which support is weak (Burnham & Anderson 2002)
 DAY_S = 86400.0
@@ -142,11 +144,13 @@ def fit_model(model: str, t, y, dt_days: float):
     starts, bounds = _starts_and_bounds(model, t, y, dt_days)
     span = float(t[-1])
     scale = np.maximum(np.abs(np.mean(starts, axis=0)), 1e-9)
-    if len(t) > 2 * EXPLORE_POINTS:
-        # Every start on an even subsample, then only the two best polished on all points (speed).
-        sub = _even_index(len(t), EXPLORE_POINTS)
-        explored = [r for r in (_solve(model, q, t[sub], y[sub], span, dt_days, bounds, scale) for q in starts) if r]
-        starts = [r[0] for r in sorted(explored, key=lambda r: r[1])[:2]]
+    if len(starts) > 2:
+        # Every start briefly (on an even subsample of long series), then only the best few
+        # polished on all points: most of the cost of many starts is iterations, not points.
+        sub = _even_index(len(t), EXPLORE_POINTS) if len(t) > 2 * EXPLORE_POINTS else slice(None)
+        explored = [r for r in (_solve(model, q, t[sub], y[sub], span, dt_days, bounds, scale, EXPLORE_NFEV)
+                                for q in starts) if r]
+        starts = [r[0] for r in sorted(explored, key=lambda r: r[1])[:POLISHED_STARTS]] or starts
     best, best_rss = None, math.inf
     for start in starts:
         result = _solve(model, start, t, y, span, dt_days, bounds, scale)
@@ -155,11 +159,11 @@ def fit_model(model: str, t, y, dt_days: float):
     return (best, best_rss) if best is not None else (None, math.nan)
 
 
-def _solve(model, start, t, y, span, dt_days, bounds, scale):
+def _solve(model, start, t, y, span, dt_days, bounds, scale, max_nfev=400):
     """(search vector, RSS, converged) from one start, or None when the solver fails."""
     try:
         res = least_squares(lambda q: predict(model, _natural(model, q, span, dt_days), t) - y, start,
-                            bounds=bounds, x_scale=scale, method="trf", max_nfev=400)
+                            bounds=bounds, x_scale=scale, method="trf", max_nfev=max_nfev)
     except (ValueError, FloatingPointError):
         return None
     rss = float(np.sum(res.fun ** 2))
