@@ -193,6 +193,7 @@ def analyse(loaded: Loaded, stages: tuple, cfg: Config, clock: StageClock) -> tu
     per_animal = [s for s in stages if s in ("fit", "null", "ranges")]
     if not per_animal:
         return tables, []
+    _import_stage_modules(per_animal)
     with clock("analyse:" + "+".join(per_animal)):
         animals = map_animals(analyse_animal, animal_tasks(loaded, tuple(stages), cfg),
                               workers=cfg.workers, scheduler=cfg.scheduler, quiet=cfg.quiet)
@@ -211,6 +212,15 @@ def analyse(loaded: Loaded, stages: tuple, cfg: Config, clock: StageClock) -> tu
             tables["ranges"] = _concat([a.ranges for a in animals])
             tables["ranges_geojson"] = ranges.feature_collection([f for a in animals for f in a.features])
     return tables, animals
+
+
+def _import_stage_modules(stages) -> None:
+    """Import the stage packages before workers start, so forked workers inherit them loaded."""
+    import importlib
+
+    for stage, module in (("fit", "roamstat.models"), ("null", "roamstat.compare"), ("ranges", "roamstat.ranges")):
+        if stage in stages:
+            importlib.import_module(module)
 
 
 def _concat(frames: list[pd.DataFrame]) -> pd.DataFrame:
