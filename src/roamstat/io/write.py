@@ -81,7 +81,7 @@ def format_times(table: pd.DataFrame) -> pd.DataFrame:
         column = out[name]
         if not isinstance(column.dtype, pd.DatetimeTZDtype):
             continue
-        utc = column.dt.tz_convert("UTC").dt.tz_localize(None).to_numpy()
+        utc = column.to_numpy(dtype="datetime64[ns]")  # tz-aware values convert as UTC
         text = pa.array(np.datetime_as_string(utc, unit=_time_unit(utc)), mask=np.isnat(utc))
         out[name] = pd.Series(pd.arrays.ArrowStringArray(pc.binary_join_element_wise(text, "+00:00", "")),
                               index=out.index)
