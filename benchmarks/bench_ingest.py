@@ -142,6 +142,11 @@ def main() -> None:
     print(f"floor (read_csv + one pyproj transform): {floor_s:6.2f} s  peak {floor_mb:6.0f} MB")
     print(f"{label}: {job_s:6.2f} s  peak {job_mb:6.0f} MB")
     print(f"ratio {job_s / floor_s:.2f} (goal <= 2.0); peak {job_mb / 1024:.2f} GB (goal < 1.5 GB)")
+    if full_pipeline_available():
+        shutil.rmtree(out, ignore_errors=True)
+        low_s, low_mb = timed_child(job_cmd + ["--low-memory"])
+        print(f"roamstat steps --low-memory: {low_s:6.2f} s  peak {low_mb:6.0f} MB "
+              f"(ratio {low_s / floor_s:.2f}; memory grows with the largest animal, not the file)")
     print("times are whole processes (interpreter start-up and imports included), best of", args.repeat)
 
 

@@ -79,6 +79,8 @@ def _output_options() -> argparse.ArgumentParser:
     g.add_argument("--format", choices=("csv", "parquet"), default="csv", help="table format (parquet needs pyarrow)")
     g.add_argument("--workers", default="1", help="worker processes, or 'auto' for all cores (default 1)")
     g.add_argument("--scheduler", metavar="tcp://HOST:PORT", help="run per-animal work on an existing Dask cluster")
+    g.add_argument("--low-memory", action="store_true",
+                   help="read in chunks and work a batch of animals at a time (big deployments; same tables)")
     g.add_argument("--no-report", action="store_true", help="skip figures and report.html")
     g.add_argument("--quiet", action="store_true", help="no progress bar or closing summary")
     return p
@@ -127,6 +129,7 @@ def config_from_args(args: argparse.Namespace) -> Config:
             mask_locations=args.mask_locations or args.mask_grid is not None, mask_grid=args.mask_grid,
             workers=resolve_workers(args.workers), scheduler=args.scheduler,
             report=not args.no_report, quiet=args.quiet, force=args.force, output_format=args.format,
+            low_memory=args.low_memory,
         )
     return Config(**values)
 
@@ -171,11 +174,9 @@ def _dispatch(args: argparse.Namespace, argv: list[str]) -> int:
 
 
 def closing_summary(result) -> str:
-    from roamstat.run import n_kept
-
     loaded = result.loaded
     lines = [
-        f"roamstat: {loaded.read.n_read} rows read, {n_kept(loaded.fixes)} fixes kept, "
+        f"roamstat: {loaded.read.n_read} rows read, {loaded.n_kept()} fixes kept, "
         f"{len(loaded.rejected)} rejected (see rejected.csv); outputs in {result.out_dir}",
     ]
     null_tests = result.tables.get("null_tests")

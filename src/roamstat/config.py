@@ -57,6 +57,7 @@ class Config:
     quiet: bool = False
     force: bool = False
     output_format: str = "csv"  # csv or parquet
+    low_memory: bool = False  # read in chunks and work a batch of animals at a time
 
     def replace(self, **changes) -> "Config":
         """A copy with some fields changed (the object itself is frozen)."""

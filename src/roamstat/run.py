@@ -72,6 +72,10 @@ class Loaded:
     projections: dict
     steps: pd.DataFrame | None = None
     summary: pd.DataFrame | None = None
+    kept: int | None = None  # input rows kept, when ``fixes`` does not hold them all (streamed runs)
+
+    def n_kept(self) -> int:
+        return n_kept(self.fixes) if self.kept is None else self.kept
 
 
 @dataclass
@@ -90,7 +94,7 @@ def load(paths, cfg: Config, clock: StageClock | None = None, with_steps: bool =
         read = read_inputs(paths, cfg)
     with clock("screen"):
         fixes, rejected = screen(read.rows, cfg)
-        rejected = pd.concat([read.rejected, rejected], ignore_index=True) if len(read.rejected) else rejected
+        rejected = combine_rejected(read.rejected, rejected)
     if len(fixes) == 0:
         raise RoamstatError(
             f"no fix in {_names(paths)} passed screening ({len(rejected)} rows rejected); "
@@ -104,6 +108,15 @@ def load(paths, cfg: Config, clock: StageClock | None = None, with_steps: bool =
             loaded.steps = compute_steps(fixes)
             loaded.summary = summarise(fixes, loaded.steps, rejected)
     return loaded
+
+
+def combine_rejected(read_rejected: pd.DataFrame, screen_rejected: pd.DataFrame) -> pd.DataFrame:
+    """Rows rejected while reading, then by the screen; line numbers stay whole numbers."""
+    rejected = pd.concat([read_rejected, screen_rejected], ignore_index=True) if len(read_rejected) \
+        else screen_rejected.reset_index(drop=True)
+    if len(rejected):
+        rejected["source_row"] = pd.to_numeric(rejected["source_row"]).astype("Int64")
+    return rejected
 
 
 def _names(paths) -> str:
@@ -189,29 +202,40 @@ def animal_tasks(loaded: Loaded, stages: tuple, cfg: Config) -> list[AnimalTask]
 
 def analyse(loaded: Loaded, stages: tuple, cfg: Config, clock: StageClock) -> tuple[dict, list]:
     """Per-animal stages in parallel, then the deployment-level ones."""
-    tables: dict[str, pd.DataFrame] = {}
     per_animal = [s for s in stages if s in ("fit", "null", "ranges")]
     if not per_animal:
-        return tables, []
-    _import_stage_modules(per_animal)
+        return {}, []
     with clock("analyse:" + "+".join(per_animal)):
-        animals = map_animals(analyse_animal, animal_tasks(loaded, tuple(stages), cfg),
-                              workers=cfg.workers, scheduler=cfg.scheduler, quiet=cfg.quiet)
+        animals = analyse_animals(loaded, stages, cfg)
     with clock("deployment"):
-        if "fit" in stages:
-            tables["fits"] = _concat([a.fits for a in animals])
-        if "null" in stages:
-            from roamstat import compare
-
-            tables["null_tests"] = compare.finalise(_concat([a.null_tests for a in animals]), cfg)
-        if "ranges" in stages:
-            from roamstat import ranges
-
-            residency = pd.DataFrame([a.residency for a in animals])
-            tables["residency"] = ranges.finalise_residency(residency, tables.get("null_tests"))
-            tables["ranges"] = _concat([a.ranges for a in animals])
-            tables["ranges_geojson"] = ranges.feature_collection([f for a in animals for f in a.features])
+        tables = deployment_tables(animals, stages, cfg)
     return tables, animals
+
+
+def analyse_animals(loaded: Loaded, stages: tuple, cfg: Config) -> list[AnimalResult]:
+    """The per-animal stages for every animal of ``loaded``, in sorted id order."""
+    _import_stage_modules(stages)
+    return map_animals(analyse_animal, animal_tasks(loaded, tuple(stages), cfg),
+                       workers=cfg.workers, scheduler=cfg.scheduler, quiet=cfg.quiet)
+
+
+def deployment_tables(animals: list[AnimalResult], stages: tuple, cfg: Config) -> dict:
+    """Tables across animals: fits, null tests with q-values and verdicts, residency, ranges."""
+    tables: dict = {}
+    if "fit" in stages:
+        tables["fits"] = _concat([a.fits for a in animals])
+    if "null" in stages:
+        from roamstat import compare
+
+        tables["null_tests"] = compare.finalise(_concat([a.null_tests for a in animals]), cfg)
+    if "ranges" in stages:
+        from roamstat import ranges
+
+        residency = pd.DataFrame([a.residency for a in animals])
+        tables["residency"] = ranges.finalise_residency(residency, tables.get("null_tests"))
+        tables["ranges"] = _concat([a.ranges for a in animals])
+        tables["ranges_geojson"] = ranges.feature_collection([f for a in animals for f in a.features])
+    return tables
 
 
 def _import_stage_modules(stages) -> None:
@@ -260,6 +284,10 @@ def prepare_out_dir(out_dir: Path, inputs, force: bool) -> Path:
 
 def run_command(command: str, paths, out_dir, cfg: Config, argv: list[str] | None = None) -> RunResult:
     """Run one command's stages and write its outputs into ``out_dir``."""
+    if cfg.low_memory:
+        from roamstat.stream import run_streamed
+
+        return run_streamed(command, paths, out_dir, cfg, argv)
     stages = COMMAND_STAGES[command]
     if "report" in stages and not cfg.report:
         stages = tuple(s for s in stages if s != "report")
@@ -392,7 +420,7 @@ def run_info(loaded: Loaded, cfg: Config, argv) -> dict:
         "command_line": " ".join(argv or []),
         "seed": cfg.seed,
         "n_read": loaded.read.n_read,
-        "n_kept": n_kept(loaded.fixes),
+        "n_kept": loaded.n_kept(),
         "n_rejected": int(len(loaded.rejected)),
         "projections": visible_projections(loaded, cfg),
         "masked": cfg.mask_locations,
@@ -423,7 +451,7 @@ def build_manifest(command, loaded: Loaded, cfg: Config, argv, stages, duration_
         "inputs": [{k: f[k] for k in ("path", "size_bytes", "sha256", "encoding", "delimiter", "columns", "n_rows", "notes") if k in f}
                    for f in read.files],
         "time_zone_of_naive_times": read.tz_note,
-        "rows": {"read": read.n_read, "kept": n_kept(loaded.fixes), "rejected": int(len(loaded.rejected))},
+        "rows": {"read": read.n_read, "kept": loaded.n_kept(), "rejected": int(len(loaded.rejected))},
         "rejected_by_reason": {str(k): int(v) for k, v in loaded.rejected["reason_code"].value_counts().sort_index().items()}
         if len(loaded.rejected) else {},
         "projections": visible_projections(loaded, cfg),

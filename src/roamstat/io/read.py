@@ -152,6 +152,7 @@ def _read_file(path: str, cfg) -> _FileRead:
         info["notes"] += mapping.notes
     info["columns"] = mapping.describe()
     info["parsed_columns"] = [*mapping.columns.values(), *([mapping.date_col] if mapping.date_col else [])]
+    info["roles"] = {**mapping.columns, **({"date": mapping.date_col} if mapping.date_col else {})}
     info["n_rows"] = int(len(values))
     if bad is not None and (bad != "").any():
         drop = bad != ""

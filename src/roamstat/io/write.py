@@ -95,14 +95,13 @@ def _time_unit(values: np.ndarray) -> str:
     return "ms" if not (finite % 1000).any() else "us"
 
 
-def write_csv(table: pd.DataFrame, path: str | os.PathLike) -> Path:
-    """Write a table as UTF-8 CSV, atomically, times in ISO 8601, formulas neutralised.
+def csv_bytes(table: pd.DataFrame, header: bool = True) -> bytes:
+    """A table as UTF-8 CSV bytes, times in ISO 8601, formulas neutralised.
 
     Arrow's C++ writer does the formatting (several times faster than
     pandas on million-row tables): text is quoted, floats are written in the
     shortest form that reads back to the same number, booleans as
-    ``true``/``false``.  Two runs with the same inputs and seed give
-    byte-identical files.
+    ``true``/``false``.  The same table always gives the same bytes.
     """
     import pyarrow as pa
     import pyarrow.csv as pa_csv
@@ -113,8 +112,40 @@ def write_csv(table: pd.DataFrame, path: str | os.PathLike) -> Path:
             ready[name] = ready[name].astype("string")  # mixed Python objects as their text
     arrow = pa.Table.from_pandas(ready, preserve_index=False)
     sink = pa.BufferOutputStream()
-    pa_csv.write_csv(arrow, sink, pa_csv.WriteOptions(quoting_style="needed"))
-    return atomic_write(path, sink.getvalue().to_pybytes())
+    pa_csv.write_csv(arrow, sink, pa_csv.WriteOptions(quoting_style="needed", include_header=header))
+    return sink.getvalue().to_pybytes()
+
+
+def write_csv(table: pd.DataFrame, path: str | os.PathLike) -> Path:
+    """Write a table as CSV (see :func:`csv_bytes`), atomically."""
+    return atomic_write(path, csv_bytes(table))
+
+
+class StreamingCsv:
+    """A CSV table written in pieces, renamed into place only when complete."""
+
+    def __init__(self, path: str | os.PathLike):
+        self.path = Path(path)
+        fd, self.tmp = tempfile.mkstemp(prefix=f".{self.path.name}.", suffix=".part", dir=self.path.parent)
+        self.handle = os.fdopen(fd, "wb")
+        self.columns: list | None = None
+
+    def append(self, table: pd.DataFrame) -> None:
+        if self.columns is None:
+            self.columns = list(table.columns)
+            self.handle.write(csv_bytes(table, header=True))
+        elif len(table):
+            self.handle.write(csv_bytes(table[self.columns], header=False))
+
+    def close(self) -> Path:
+        self.handle.close()
+        os.chmod(self.tmp, 0o666 & ~_UMASK)
+        os.replace(self.tmp, self.path)
+        return self.path
+
+    def abandon(self) -> None:
+        self.handle.close()
+        Path(self.tmp).unlink(missing_ok=True)
 
 
 def write_json(obj, path: str | os.PathLike) -> Path:
