@@ -77,3 +77,15 @@ def test_two_workers_give_identical_tables(sample_run, tmp_path):
     parallel = tmp_path / "parallel"
     assert main(["run", str(sample), "--out", str(parallel), *FAST, "--no-report", "--workers", "2"]) == 0
     assert table_bytes(parallel) == table_bytes(out)
+
+
+def test_dask_cluster_gives_identical_tables(sample_run, tmp_path):
+    distributed = pytest.importorskip("dask.distributed", reason="Dask is the optional [cluster] extra")
+    sample, out = sample_run
+    on_cluster = tmp_path / "cluster"
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                  host="127.0.0.1", dashboard_address=None) as cluster:
+        code = main(["run", str(sample), "--out", str(on_cluster), *FAST, "--no-report",
+                     "--scheduler", cluster.scheduler_address])
+    assert code == 0
+    assert table_bytes(on_cluster) == table_bytes(out)

@@ -1,7 +1,7 @@
 """The pipeline animal by animal, for deployments too big to hold in memory at once.
 
 ``--low-memory`` reads each input in record chunks (:mod:`roamstat.io.chunks`),
-spills every animal's rows to its own Parquet parts in a scratch folder
+spills every animal's rows to its own pickled parts (exact dtypes) in a scratch folder
 inside ``--out``, then screens, projects, measures and analyses a batch of
 animals at a time, appending to fixes.csv and steps.csv as it goes.  Peak
 memory then grows with the largest animal (times the batch size), not with
