@@ -323,17 +323,21 @@ def write_table(table: pd.DataFrame, path: Path, cfg: Config) -> None:
 
 
 def write_tables(out_dir: Path, loaded: Loaded, tables: dict, cfg: Config) -> None:
-    from roamstat.io.write import write_json as _json
-
     named = {"fixes": fixes_for_output(loaded.fixes, cfg, loaded.read), "rejected": rejected_for_output(loaded.rejected, cfg)}
     if loaded.steps is not None:
         named["steps"] = loaded.steps
-        named["summary"] = loaded.summary
+    write_named(out_dir, named, loaded.summary, tables, cfg)
+
+
+def write_named(out_dir: Path, named: dict, summary: pd.DataFrame | None, tables: dict, cfg: Config) -> None:
+    """Write the given tables, the summary (when computed) and the analysis tables with the GeoJSON."""
+    if summary is not None:
+        named = {**named, "summary": summary}
     named.update({k: v for k, v in tables.items() if k != "ranges_geojson"})
     for stem, table in named.items():
         write_table(table, out_dir / output_name(stem, cfg), cfg)
     if "ranges_geojson" in tables:
-        _json(tables["ranges_geojson"], out_dir / "ranges.geojson")
+        write_json(tables["ranges_geojson"], out_dir / "ranges.geojson")
 
 
 def fixes_for_output(fixes: pd.DataFrame, cfg: Config, read: ReadResult | None = None) -> pd.DataFrame:

@@ -26,8 +26,8 @@ from roamstat.io.read import ReadResult
 from roamstat.io.write import StreamingCsv, write_json
 from roamstat.run import (MANIFEST, COMMAND_STAGES, Loaded, RunResult, StageClock, analyse_animals, build_manifest,
                           combine_rejected,
-                          deployment_tables, fixes_for_output, n_kept, output_name, prepare_out_dir, report_tables,
-                          run_info, write_table)
+                          deployment_tables, fixes_for_output, n_kept, output_name, prepare_out_dir,
+                          rejected_for_output, report_tables, run_info, write_named)
 from roamstat.screen import screen
 from roamstat.track import compute_steps, prepare_fixes, summarise
 
@@ -166,16 +166,7 @@ def _process(command, spill: _Spill, stages, out_dir: Path, cfg: Config, clock: 
     with clock("deployment"):
         tables = deployment_tables(animals, stages, cfg) if animals else {}
     with clock("write"):
-        from roamstat.run import rejected_for_output
-
-        named = {"rejected": rejected_for_output(rejected, cfg)}
-        if loaded.summary is not None:
-            named["summary"] = loaded.summary
-        named.update({k: v for k, v in tables.items() if k != "ranges_geojson"})
-        for stem, table in named.items():
-            write_table(table, out_dir / output_name(stem, cfg), cfg)
-        if "ranges_geojson" in tables:
-            write_json(tables["ranges_geojson"], out_dir / "ranges.geojson")
+        write_named(out_dir, {"rejected": rejected_for_output(rejected, cfg)}, loaded.summary, tables, cfg)
     return loaded, tables, animals
 
 
