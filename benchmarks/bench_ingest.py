@@ -6,9 +6,8 @@ process and best of --repeat runs:
 
 * the floor: ``pandas.read_csv`` of the file plus one pyproj transform of every point
   (WGS84 -> an azimuthal equidistant frame);
-* ``roamstat steps FILE --out DIR`` (the console script of this venv).  While the reader or
-  screen is not importable yet, the track stages alone are timed instead (read_csv, then
-  ``prepare_fixes``, ``compute_steps``, ``summarise``), and the output says so.
+* ``roamstat steps FILE --out DIR`` (the console script of this venv), and the same with
+  ``--low-memory``.
 
 Prints both wall times (process start to exit), their ratio and each process's peak resident
 memory (ru_maxrss from wait4).  Goals: ratio <= 2.0, peak < 1.5 GB.  The file is built in a
@@ -21,7 +20,6 @@ this process stays small (standard library only).
 from __future__ import annotations
 
 import argparse
-import importlib.util
 import os
 import shutil
 import subprocess
@@ -40,21 +38,6 @@ to_plane = Transformer.from_crs("EPSG:4326", "+proj=aeqd +lat_0=61 +lon_0=24 +da
 x, y = to_plane.transform(table["longitude"].to_numpy(), table["latitude"].to_numpy())
 print(len(x))
 """
-
-TRACK_ONLY = """
-import sys
-import pandas as pd
-from roamstat.config import Config
-from roamstat.track import compute_steps, prepare_fixes, summarise
-table = pd.read_csv(sys.argv[1])
-table = table.rename(columns={"latitude": "lat", "longitude": "lon", "satellites": "n_sats"})
-table["time"] = pd.to_datetime(table.pop("timestamp"), utc=True, format="ISO8601")
-fixes, _ = prepare_fixes(table, Config())
-steps = compute_steps(fixes)
-summary = summarise(fixes, steps, table.iloc[0:0])
-print(len(steps))
-"""
-
 
 def make_file(n_animals: int, n_fixes: int, path: Path, seed: int = 1) -> Path:
     """Correlated random walks near 61 N 24 E, 2-hourly with a few seconds of jitter."""
@@ -99,10 +82,6 @@ def timed_child(command: list[str]) -> tuple[float, float]:
     return elapsed, usage.ru_maxrss / 1024
 
 
-def full_pipeline_available() -> bool:
-    return all(importlib.util.find_spec(m) is not None for m in ("roamstat.io.read", "roamstat.screen", "roamstat.cli"))
-
-
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--animals", type=int, default=100)
@@ -124,13 +103,8 @@ def main() -> None:
 
     floor_cmd = [sys.executable, "-c", FLOOR, str(path)]
     out = WORK / "ingest_out"
-    if full_pipeline_available():
-        label = "roamstat steps"
-        roamstat = Path(sys.executable).with_name("roamstat")
-        job_cmd = [str(roamstat), "steps", str(path), "--out", str(out), "--quiet", "--force"]
-    else:
-        label = "track stages only (reader/screen not importable yet)"
-        job_cmd = [sys.executable, "-c", TRACK_ONLY, str(path)]
+    roamstat = Path(sys.executable).with_name("roamstat")
+    job_cmd = [str(roamstat), "steps", str(path), "--out", str(out), "--quiet", "--force"]
 
     floors, jobs = [], []
     for _ in range(args.repeat):
@@ -140,13 +114,12 @@ def main() -> None:
     floor_s, floor_mb = min(floors)
     job_s, job_mb = min(jobs)
     print(f"floor (read_csv + one pyproj transform): {floor_s:6.2f} s  peak {floor_mb:6.0f} MB")
-    print(f"{label}: {job_s:6.2f} s  peak {job_mb:6.0f} MB")
+    print(f"roamstat steps: {job_s:6.2f} s  peak {job_mb:6.0f} MB")
     print(f"ratio {job_s / floor_s:.2f} (goal <= 2.0); peak {job_mb / 1024:.2f} GB (goal < 1.5 GB)")
-    if full_pipeline_available():
-        shutil.rmtree(out, ignore_errors=True)
-        low_s, low_mb = timed_child(job_cmd + ["--low-memory"])
-        print(f"roamstat steps --low-memory: {low_s:6.2f} s  peak {low_mb:6.0f} MB "
-              f"(ratio {low_s / floor_s:.2f}; memory grows with the largest animal, not the file)")
+    shutil.rmtree(out, ignore_errors=True)
+    low_s, low_mb = timed_child(job_cmd + ["--low-memory"])
+    print(f"roamstat steps --low-memory: {low_s:6.2f} s  peak {low_mb:6.0f} MB "
+          f"(ratio {low_s / floor_s:.2f}; memory grows with the largest animal, not the file)")
     print("times are whole processes (interpreter start-up and imports included), best of", args.repeat)
 
 

@@ -8,7 +8,6 @@ independent animals must lie in the 99 % binomial band.  Fixed seeds keep every 
 
 from __future__ import annotations
 
-import numpy as np
 import pandas as pd
 import pytest
 from scipy import stats

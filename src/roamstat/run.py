@@ -160,7 +160,7 @@ def analyse_animal(task: AnimalTask) -> AnimalResult:
         row, curve = ranges.residency_animal(analysed_track(task.fixes), cfg)
         result.residency = {"animal_id": aid, **row}
         result.residency_curve = curve
-        range_rows, features, extras = ranges.ranges_animal(observed_fixes(task.fixes), cfg)
+        range_rows, features, extras = ranges.ranges_animal(task.fixes, cfg)  # keeps observed fixes itself
         result.ranges = _with_id(pd.DataFrame(range_rows), aid)
         result.features = features
         result.range_extras = extras
@@ -223,17 +223,17 @@ def deployment_tables(animals: list[AnimalResult], stages: tuple, cfg: Config) -
     """Tables across animals: fits, null tests with q-values and verdicts, residency, ranges."""
     tables: dict = {}
     if "fit" in stages:
-        tables["fits"] = _concat([a.fits for a in animals])
+        tables["fits"] = concat_tables([a.fits for a in animals])
     if "null" in stages:
         from roamstat import compare
 
-        tables["null_tests"] = compare.finalise(_concat([a.null_tests for a in animals]), cfg)
+        tables["null_tests"] = compare.finalise(concat_tables([a.null_tests for a in animals]), cfg)
     if "ranges" in stages:
         from roamstat import ranges
 
         residency = pd.DataFrame([a.residency for a in animals])
         tables["residency"] = ranges.finalise_residency(residency, tables.get("null_tests"))
-        tables["ranges"] = _concat([a.ranges for a in animals])
+        tables["ranges"] = concat_tables([a.ranges for a in animals])
         tables["ranges_geojson"] = ranges.feature_collection([f for a in animals for f in a.features])
     return tables
 
@@ -247,9 +247,10 @@ def _import_stage_modules(stages) -> None:
             importlib.import_module(module)
 
 
-def _concat(frames: list[pd.DataFrame]) -> pd.DataFrame:
+def concat_tables(frames: list[pd.DataFrame], empty_columns=()) -> pd.DataFrame:
+    """Non-empty frames stacked, or an empty table with the given columns."""
     frames = [f for f in frames if len(f)]
-    return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
+    return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(columns=list(empty_columns))
 
 
 #: Everything a run may leave in its folder; a run interrupted before its manifest leaves only these.

@@ -22,10 +22,10 @@ import pandas as pd
 from roamstat.config import Config
 from roamstat.errors import RoamstatError
 from roamstat.io.chunks import read_in_chunks
-from roamstat.io.read import ReadResult
+from roamstat.io.read import REJECTED_BASE, ReadResult
 from roamstat.io.write import StreamingCsv, write_json
-from roamstat.run import (MANIFEST, COMMAND_STAGES, Loaded, RunResult, StageClock, analyse_animals, build_manifest,
-                          combine_rejected,
+from roamstat.run import (MANIFEST, COMMAND_STAGES, Loaded, RunResult, StageClock, concat_tables,
+                          analyse_animals, build_manifest, combine_rejected,
                           deployment_tables, fixes_for_output, n_kept, output_name, prepare_out_dir,
                           rejected_for_output, report_tables, run_info, write_named)
 from roamstat.screen import screen
@@ -100,24 +100,24 @@ def _spill(paths, cfg: Config, scratch: Path, chunk_records: int) -> _Spill:
             spill.input_crs = part.input_crs
             if part.tz_note:
                 spill.tz_notes.add(part.tz_note)
-            file_info = _merge_info(file_info, part.files[0], str(path))
+            file_info = _merge_info(file_info, part.files[0])
         spill.files.append(file_info)
     if spill.n_read == 0 or not spill.parts:
         raise RoamstatError(f"{', '.join(map(str, paths))}: no data row could be read; check with 'roamstat inspect'")
     return spill
 
 
-def _merge_info(total: dict | None, chunk: dict, path: str) -> dict:
+def _merge_info(total: dict | None, chunk: dict) -> dict:
+    """One file's description from its chunks' (path, size and hash are the file's already)."""
     if total is None:
-        data = Path(path).read_bytes()
-        return {**chunk, "path": path, "size_bytes": len(data), "sha256": hashlib.sha256(data).hexdigest()}
+        return dict(chunk)
     total["n_rows"] += chunk["n_rows"]
     total["notes"] = list(dict.fromkeys([*total.get("notes", []), *chunk.get("notes", [])]))
     return total
 
 
 def _process(command, spill: _Spill, stages, out_dir: Path, cfg: Config, clock: StageClock, batch_animals: int):
-    read = ReadResult(rows=pd.DataFrame(), rejected=_concat(spill.read_rejected), files=spill.files,
+    read = ReadResult(rows=pd.DataFrame(), rejected=concat_tables(spill.read_rejected, REJECTED_BASE), files=spill.files,
                       n_read=spill.n_read, input_crs=spill.input_crs, tz_note="; ".join(sorted(spill.tz_notes)))
     writers = {"fixes": StreamingCsv(out_dir / output_name("fixes", cfg))}
     if "steps" in stages:
@@ -155,14 +155,14 @@ def _process(command, spill: _Spill, stages, out_dir: Path, cfg: Config, clock: 
         for writer in writers.values():
             writer.abandon()
         raise
-    screen_rejected = _concat(screened)
+    screen_rejected = concat_tables(screened, REJECTED_BASE)
     if len(screen_rejected):
         screen_rejected = screen_rejected.sort_values(["source_file", "source_row"], kind="stable")
     rejected = combine_rejected(read.rejected, screen_rejected)
     # Track maps fall back to the ranges stage's own points: the fixes are on disk, not in memory.
     loaded = Loaded(read=read, fixes=pd.DataFrame(columns=["animal_id", "lat", "lon", "x_m", "y_m"]), rejected=rejected,
                     projections=dict(sorted(projections.items())), kept=kept,
-                    summary=_concat(summaries) if summaries else None)
+                    summary=concat_tables(summaries) if summaries else None)
     with clock("deployment"):
         tables = deployment_tables(animals, stages, cfg) if animals else {}
     with clock("write"):
@@ -175,9 +175,3 @@ def _rejected_of(animals, read_rejected: pd.DataFrame, screen_rejected: pd.DataF
     if not len(read_rejected):
         return screen_rejected
     return pd.concat([read_rejected[read_rejected["animal_id"].isin(animals)], screen_rejected], ignore_index=True)
-
-
-def _concat(frames) -> pd.DataFrame:
-    frames = [f for f in frames if len(f)]
-    return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(
-        columns=["source_file", "source_row", "animal_id", "reason_code", "reason"])

@@ -11,6 +11,7 @@ whole, as in the ordinary path.
 
 from __future__ import annotations
 
+import hashlib
 import tempfile
 from collections.abc import Iterator
 from pathlib import Path
@@ -77,6 +78,8 @@ def _fix_mapping(cfg: Config, roles: dict) -> Config:
 
 
 def _as_original(part: ReadResult, path: str, raw: bytes, offset: int) -> ReadResult:
+    """A chunk's result as if read from the original file: its path, size, hash and line numbers."""
+    part.files[0].update(path=path, size_bytes=len(raw), sha256=hashlib.sha256(raw).hexdigest())
     for table in (part.rows, part.rejected):
         if len(table):
             table["source_file"] = np.full(len(table), path, dtype=object)

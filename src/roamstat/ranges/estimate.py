@@ -12,11 +12,10 @@ import math
 import numpy as np
 import pandas as pd
 
-from roamstat.errors import RoamstatError
 from roamstat.ranges import geojson
 from roamstat.ranges.frames import animal_frame, observed_fixes
 from roamstat.ranges.kde import density_grid, isopleth, reference_bandwidth
-from roamstat.ranges.mask import MASK_NOTE, MASKED_FRAME, hidden_origin
+from roamstat.ranges.mask import MASK_NOTE, MASKED_FRAME, hidden_origin, positive_metres
 from roamstat.ranges.mcp import mcp_polygon
 from roamstat.ranges.schoener import autocorrelation_note, schoener_ratio
 
@@ -30,13 +29,7 @@ ROW_COLUMNS = ["method", "level", "area_km2", "n_fixes", "bandwidth_m", "schoene
 
 def user_bandwidth(cfg) -> float | None:
     """``cfg.kde_bandwidth`` checked, or None for the reference bandwidth."""
-    value = getattr(cfg, "kde_bandwidth", None)
-    if value is None:
-        return None
-    h = float(value)
-    if not math.isfinite(h) or h <= 0:
-        raise RoamstatError(f"--kde-bandwidth {value!r} is not a positive number of metres; give e.g. --kde-bandwidth 500")
-    return h
+    return positive_metres(getattr(cfg, "kde_bandwidth", None), "--kde-bandwidth", "500")
 
 
 def range_shapes(x, y, h_user: float | None) -> dict:

@@ -61,14 +61,19 @@ class HiddenOrigin:
         return shapely.set_precision(moved, self.grid_m) if self.grid_m else moved
 
 
-def check_grid(grid_m) -> float | None:
-    """The mask grid in metres, or None; a user error for anything but a positive number."""
-    if grid_m is None:
+def positive_metres(value, option: str, example: str) -> float | None:
+    """An optional distance option in metres, or None; a user error for anything but a positive number."""
+    if value is None:
         return None
-    value = float(grid_m)
-    if not math.isfinite(value) or value <= 0:
-        raise RoamstatError(f"--mask-grid {grid_m!r} is not a positive number of metres; give e.g. --mask-grid 1000")
-    return value
+    metres = float(value)
+    if not math.isfinite(metres) or metres <= 0:
+        raise RoamstatError(f"{option} {value!r} is not a positive number of metres; give e.g. {option} {example}")
+    return metres
+
+
+def check_grid(grid_m) -> float | None:
+    """The mask grid in metres, or None."""
+    return positive_metres(grid_m, "--mask-grid", "1000")
 
 
 def hidden_origin(x, y, grid_m=None, rng: np.random.Generator | None = None) -> HiddenOrigin:
