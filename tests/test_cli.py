@@ -75,7 +75,7 @@ def test_bad_null_name_is_a_user_error(sample_csv, tmp_path, capsys):
 
 
 def test_workers_must_be_positive(sample_csv, tmp_path, capsys):
-    code, _, err = run_cli("steps", sample_csv, "--out", tmp_path / "o", "--workers", "0", capsys=capsys)
+    code, _, err = run_cli("fit", sample_csv, "--out", tmp_path / "o", "--workers", "0", capsys=capsys)
     assert_user_error(code, err, "--workers")
 
 
@@ -122,3 +122,117 @@ def test_screening_option_without_its_column_is_an_error(tmp_path, capsys):
     path.write_text("id,time,lat,lon\nA,2024-01-01T00:00Z,60,10\nA,2024-01-01T01:00Z,60.01,10\n")
     code, _, err = run_cli("steps", path, "--out", tmp_path / "o", "--max-dop", "5", capsys=capsys)
     assert_user_error(code, err, "--max-dop", "no_dop.csv")
+
+
+def usage_error(argv, capsys):
+    """Exit status and stderr of an argument the parser itself refuses (argparse exits with 2)."""
+    with pytest.raises(SystemExit) as stop:
+        main([str(a) for a in argv])
+    return stop.value.code, capsys.readouterr().err
+
+
+def test_no_arguments_lists_every_command_with_one_line(capsys):
+    from roamstat.cli import COMMANDS
+
+    code, _, err = run_cli(capsys=capsys)
+    assert code == 2
+    for name, text in COMMANDS.items():
+        assert sum(line.split()[:1] == [name] and text in line for line in err.splitlines()) == 1, name
+
+
+def test_mistyped_flag_shows_that_commands_usage_and_the_nearest_option(sample_csv, tmp_path, capsys):
+    code, err = usage_error(["nulltest", sample_csv, "--out", tmp_path / "o", "--replicats", "99"], capsys)
+    assert code == 2
+    assert "usage: roamstat nulltest" in err
+    assert "did you mean --replicates?" in err
+    assert not (tmp_path / "o").exists()
+
+
+def test_option_of_another_command_says_which_commands_use_it(sample_csv, tmp_path, capsys):
+    code, err = usage_error(["clean", sample_csv, "--out", tmp_path / "o", "--replicates", "99"], capsys)
+    assert code == 2
+    assert "usage: roamstat clean" in err
+    assert "--replicates is used only by nulltest, run" in err
+
+
+@pytest.mark.parametrize("command, present, absent", [
+    ("inspect", ["--tz", "--max-dop", "--resample"], ["--out", "--replicates", "--null", "--workers", "--no-report"]),
+    ("clean", ["--max-dop", "--out", "--mask-locations"], ["--replicates", "--null", "--bootstrap", "--workers",
+                                                          "--kde-bandwidth", "--no-report"]),
+    ("steps", ["--resample"], ["--replicates", "--seed", "--min-step", "--workers"]),
+    ("fit", ["--min-step", "--bootstrap", "--seed", "--workers"], ["--replicates", "--null", "--kde-bandwidth"]),
+    ("nulltest", ["--null", "--replicates", "--alpha"], ["--kde-bandwidth", "--no-report"]),
+    ("ranges", ["--kde-bandwidth", "--workers"], ["--replicates", "--null", "--min-step", "--no-report"]),
+    ("run", ["--replicates", "--kde-bandwidth", "--no-report"], []),
+])
+def test_each_commands_help_shows_only_its_options(command, present, absent, capsys):
+    with pytest.raises(SystemExit):
+        main([command, "--help"])
+    out = capsys.readouterr().out
+    for option in present:
+        assert f"{option} " in out or f"{option}\n" in out, option
+    for option in absent:
+        assert option not in out, option
+
+
+def test_help_names_parquet_input_and_no_stale_pyarrow_remark(capsys):
+    with pytest.raises(SystemExit):
+        main(["run", "--help"])
+    out = " ".join(capsys.readouterr().out.split())
+    assert "CSV, GPX or Parquet" in out
+    assert "needs pyarrow" not in out
+
+
+def test_null_help_lists_the_registered_nulls(capsys):
+    from roamstat.registry import NULLS
+
+    with pytest.raises(SystemExit):
+        main(["nulltest", "--help"])
+    out = " ".join(capsys.readouterr().out.split())
+    for entry in NULLS:
+        assert f"{entry.name}: {entry.summary}" in out
+
+
+@pytest.mark.parametrize("flags, fragment", [
+    (["--max-dop", "-1"], "--max-dop"),
+    (["--max-speed", "0"], "--max-speed"),
+    (["--keep", "spikes"], "--keep"),
+    (["--tz", "BST"], "--tz"),
+    (["--replicates", "5"], "--replicates"),
+    (["--null", "crw,brownian"], "crw, shuffle, levy"),
+])
+def test_bad_values_are_one_line_errors_before_any_output(flags, fragment, sample_csv, tmp_path, capsys):
+    code, _, err = run_cli("nulltest", sample_csv, "--out", tmp_path / "o", *flags, capsys=capsys)
+    assert_user_error(code, err, fragment)
+    assert not (tmp_path / "o").exists()
+
+
+def test_tz_on_times_with_offsets_gives_a_note(sample_csv, tmp_path, capsys):
+    # The sample's times all end in Z; a zone for naive times has nothing to act on.
+    code, _, err = run_cli("clean", sample_csv, "--out", tmp_path / "o", "--tz", "Europe/London", "--quiet",
+                           capsys=capsys)
+    assert code == 0
+    assert "--tz Europe/London changed nothing" in err
+    code, out, _ = run_cli("inspect", sample_csv, "--tz", "Europe/London", capsys=capsys)
+    assert code == 0 and "--tz Europe/London changed nothing" in out
+    code, _, err = run_cli("clean", sample_csv, "--out", tmp_path / "o2", "--quiet", capsys=capsys)
+    assert code == 0 and "changed nothing" not in err
+
+
+def test_tz_on_naive_times_gives_no_note(tmp_path, capsys):
+    path = tmp_path / "naive.csv"
+    path.write_text("id,time,lat,lon\nA,2024-01-01 00:00,60,10\nA,2024-01-01 01:00,60.01,10\n")
+    code, out, _ = run_cli("inspect", path, "--tz", "Europe/Oslo", capsys=capsys)
+    assert code == 0 and "changed nothing" not in out
+
+
+@pytest.mark.parametrize("low_memory", [[], ["--low-memory"]])
+def test_all_rejected_input_still_writes_rejected_csv_and_names_it(low_memory, tmp_path, capsys):
+    path = tmp_path / "zeros.csv"
+    path.write_text("id,time,lat,lon\nA,2024-01-01T00:00Z,0,0\nA,2024-01-01T01:00Z,0,0\nA,bad,60,10\n")
+    out = tmp_path / "o"
+    code, _, err = run_cli("clean", path, "--out", out, *low_memory, capsys=capsys)
+    assert_user_error(code, err, str(out / "rejected.csv"), "--keep")
+    rejected = pd.read_csv(out / "rejected.csv")
+    assert sorted(rejected["source_row"]) == [2, 3, 4]
+    assert sorted(rejected["reason_code"]) == ["bad_time", "null_island", "null_island"]

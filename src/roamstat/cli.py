@@ -9,13 +9,16 @@ traceback.
 from __future__ import annotations
 
 import argparse
+import dataclasses
+import difflib
 import sys
 import warnings
 from collections import Counter
 
 from roamstat import __version__
-from roamstat.config import NULL_MODELS, Config
+from roamstat.config import MIN_REPLICATES, NULL_MODELS, Config, check_config
 from roamstat.errors import RoamstatError
+from roamstat.registry import NULLS
 
 COMMANDS = {
     "inspect": "print what roamstat detects in the files (columns, animals, schedule, projection); writes nothing",
@@ -27,63 +30,107 @@ COMMANDS = {
     "run": "the whole job: every table, report.html with figures, manifest.json",
 }
 
-
-def _input_options() -> argparse.ArgumentParser:
-    p = argparse.ArgumentParser(add_help=False)
-    p.add_argument("files", nargs="+", metavar="FILE", help="CSV or GPX files of collar fixes")
-    g = p.add_argument_group("columns (detected automatically; override when detection is wrong)")
-    g.add_argument("--id-col", help="column holding the animal id")
-    g.add_argument("--time-col", help="column holding the fix time (or the date, with --date-col)")
-    g.add_argument("--date-col", help="column holding the date when time of day is in --time-col")
-    g.add_argument("--lat-col", help="latitude column (decimal degrees, WGS84)")
-    g.add_argument("--lon-col", help="longitude column (decimal degrees, WGS84)")
-    g.add_argument("--x-col", help="easting column of projected input (with --y-col and --crs)")
-    g.add_argument("--y-col", help="northing column of projected input")
-    g.add_argument("--crs", help="EPSG:NNNN of projected input, or the planar frame to use for every animal")
-    g.add_argument("--tz", default="UTC", help="time zone of times without an offset (default UTC)")
-    s = p.add_argument_group("screening")
-    s.add_argument("--max-dop", type=float, help="reject fixes with DOP above this (needs a DOP column)")
-    s.add_argument("--require-3d", action="store_true", help="reject 2-D fixes (needs a fix-type column)")
-    s.add_argument("--max-speed", type=float, metavar="M_S", help="reject fixes implying a speed above this (m/s)")
-    s.add_argument("--spike-speed", type=float, metavar="M_S", help="speed in and out that marks an out-and-back spike (default: from the animal's own speeds)")
-    s.add_argument("--min-quality", help="lowest accepted location-quality class (3, 2, 1, 0, A, B, Z)")
-    s.add_argument("--keep", action="append", default=[], metavar="REASON",
-                   help="switch a screening rule off by its reason code (repeatable), e.g. --keep spike")
-    t = p.add_argument_group("schedule and segments")
-    t.add_argument("--max-gap", help="split tracks at gaps longer than this (e.g. 12h; default 5x the fix interval)")
-    t.add_argument("--resample", metavar="INTERVAL", help="interpolate onto a regular grid within segments (e.g. 1h)")
-    return p
+# Which commands use an option: each command's --help lists only the options that change its outputs.
+_WRITING = frozenset(COMMANDS) - {"inspect"}
+_FITTING = frozenset({"fit", "nulltest", "run"})
+_TESTING = frozenset({"nulltest", "run"})
+_RANGING = frozenset({"ranges", "run"})
+_PER_ANIMAL = _FITTING | _RANGING
 
 
-def _analysis_options() -> argparse.ArgumentParser:
-    p = argparse.ArgumentParser(add_help=False)
-    g = p.add_argument_group("models and null tests")
-    g.add_argument("--min-step", type=float, default=0.0, metavar="M", help="leave steps of at most this length (m) out of step-length fits")
-    g.add_argument("--bootstrap", type=int, default=0, metavar="N", help="parametric-bootstrap replicates for parameter intervals")
-    g.add_argument("--null", default=",".join(NULL_MODELS), help="null models, comma-separated (default crw,shuffle,levy)")
-    g.add_argument("--replicates", type=int, default=999, metavar="M", help="simulated walks per animal and null (default 999)")
-    g.add_argument("--seed", type=int, default=Config.seed, help=f"run seed (default {Config.seed})")
-    g.add_argument("--alpha", type=float, default=0.05, help="significance level for verdicts, on q-values (default 0.05)")
-    r = p.add_argument_group("home ranges")
-    r.add_argument("--kde-bandwidth", type=float, metavar="M", help="kernel bandwidth in metres (default: reference bandwidth)")
-    r.add_argument("--mask-locations", action="store_true", help="publish coordinates relative to a hidden origin (sensitive species)")
-    r.add_argument("--mask-grid", type=float, metavar="M", help="with --mask-locations, also coarsen coordinates to this grid (m)")
-    return p
+def _nulls_help() -> str:
+    return (f"null models, comma-separated (default {','.join(NULL_MODELS)}): {NULLS.help_lines()}")
 
 
-def _output_options() -> argparse.ArgumentParser:
-    p = argparse.ArgumentParser(add_help=False)
-    g = p.add_argument_group("output and execution")
-    g.add_argument("--out", required=True, metavar="DIR", help="output folder")
-    g.add_argument("--force", action="store_true", help="write into a non-empty folder that is not an earlier roamstat output")
-    g.add_argument("--format", choices=("csv", "parquet"), default="csv", help="table format (parquet needs pyarrow)")
-    g.add_argument("--workers", default="1", help="worker processes, or 'auto' for all cores (default 1)")
-    g.add_argument("--scheduler", metavar="tcp://HOST:PORT", help="run per-animal work on an existing Dask cluster")
-    g.add_argument("--low-memory", action="store_true",
-                   help="read in chunks and work a batch of animals at a time (big deployments; same tables)")
-    g.add_argument("--no-report", action="store_true", help="skip figures and report.html")
-    g.add_argument("--quiet", action="store_true", help="no progress bar or closing summary")
-    return p
+#: (group, option, argparse keywords, commands that use it); groups appear in this order.
+_OPTIONS = (
+    ("columns (detected automatically; override when detection is wrong)", (
+        ("--id-col", dict(help="column holding the animal id")),
+        ("--time-col", dict(help="column holding the fix time (or the date, with --date-col)")),
+        ("--date-col", dict(help="column holding the date when time of day is in --time-col")),
+        ("--lat-col", dict(help="latitude column (decimal degrees, WGS84)")),
+        ("--lon-col", dict(help="longitude column (decimal degrees, WGS84)")),
+        ("--x-col", dict(help="easting column of projected input (with --y-col and --crs)")),
+        ("--y-col", dict(help="northing column of projected input")),
+        ("--crs", dict(help="EPSG:NNNN of projected input, or the planar frame to use for every animal")),
+        ("--tz", dict(default="UTC", help="time zone of times without an offset, e.g. Europe/London "
+                                          "(default UTC; times with an offset keep it)")),
+    ), frozenset(COMMANDS)),
+    ("screening", (
+        ("--max-dop", dict(type=float, help="reject fixes with DOP above this (needs a DOP column)")),
+        ("--require-3d", dict(action="store_true", help="reject 2-D fixes (needs a fix-type column)")),
+        ("--max-speed", dict(type=float, metavar="M_S", help="reject fixes implying a speed above this (m/s)")),
+        ("--spike-speed", dict(type=float, metavar="M_S", help="speed in and out that marks an out-and-back "
+                                                               "spike (default: from the animal's own speeds)")),
+        ("--min-quality", dict(help="lowest accepted location-quality class (3, 2, 1, 0, A, B, Z)")),
+        ("--keep", dict(action="append", default=[], metavar="REASON",
+                        help="switch a screening rule off by its reason code (repeatable), e.g. --keep spike")),
+    ), frozenset(COMMANDS)),
+    ("schedule and segments", (
+        ("--max-gap", dict(help="split tracks at gaps longer than this (e.g. 12h; default 5x the fix interval)")),
+        ("--resample", dict(metavar="INTERVAL", help="interpolate onto a regular grid within segments (e.g. 1h)")),
+    ), frozenset(COMMANDS)),
+    ("models", (
+        ("--min-step", dict(type=float, default=0.0, metavar="M",
+                            help="leave steps of at most this length (m) out of step-length fits")),
+        ("--bootstrap", dict(type=int, default=0, metavar="N",
+                             help="parametric-bootstrap replicates for parameter intervals")),
+        ("--seed", dict(type=int, default=Config.seed, help=f"run seed (default {Config.seed})")),
+    ), _FITTING),
+    ("null tests", (
+        ("--null", dict(default=",".join(NULL_MODELS), help=_nulls_help())),
+        ("--replicates", dict(type=int, default=Config.replicates, metavar="M",
+                              help=f"simulated walks per animal and null (default {Config.replicates}, "
+                                   f"at least {MIN_REPLICATES})")),
+        ("--alpha", dict(type=float, default=Config.alpha,
+                         help=f"significance level for verdicts, on q-values (default {Config.alpha})")),
+    ), _TESTING),
+    ("home ranges", (
+        ("--kde-bandwidth", dict(type=float, metavar="M",
+                                 help="kernel bandwidth in metres (default: reference bandwidth)")),
+    ), _RANGING),
+    ("sensitive species", (
+        ("--mask-locations", dict(action="store_true",
+                                  help="publish coordinates relative to a hidden origin (sensitive species)")),
+        ("--mask-grid", dict(type=float, metavar="M",
+                             help="with --mask-locations, also coarsen coordinates to this grid (m)")),
+    ), _WRITING),
+    ("output", (
+        ("--out", dict(required=True, metavar="DIR", help="output folder")),
+        ("--force", dict(action="store_true",
+                         help="write into a non-empty folder that is not an earlier roamstat output")),
+        ("--format", dict(choices=("csv", "parquet"), default="csv", help="table format (default csv)")),
+        ("--low-memory", dict(action="store_true", help="read in chunks and work a batch of animals at a time "
+                                                        "(big deployments; same tables)")),
+        ("--quiet", dict(action="store_true", help="no progress bar or closing summary")),
+    ), _WRITING),
+    ("execution", (
+        ("--workers", dict(default="1", help="worker processes, or 'auto' for all cores (default 1)")),
+        ("--scheduler", dict(metavar="tcp://HOST:PORT", help="run per-animal work on an existing Dask cluster")),
+    ), _PER_ANIMAL),
+    ("report", (
+        ("--no-report", dict(action="store_true", help="skip figures and report.html")),
+    ), frozenset({"run"})),
+)
+
+
+def _options_of(parser: argparse.ArgumentParser) -> list[str]:
+    return [o for a in parser._actions for o in a.option_strings if o.startswith("--")]
+
+
+def _unknown_option_error(parser: argparse.ArgumentParser, command: str, extras: list[str]) -> None:
+    """Answer arguments a command does not take with that command's usage and the nearest option."""
+    commands = parser._subparsers._group_actions[0].choices  # the subparsers, by command name
+    cmd = commands[command]
+    hints = []
+    for word in (e.split("=")[0] for e in extras if e.startswith("-")):
+        close = difflib.get_close_matches(word, _options_of(cmd), n=1, cutoff=0.6)
+        elsewhere = [name for name, p in commands.items() if word in _options_of(p)]
+        if elsewhere:
+            hints.append(f"{word} is used only by {', '.join(elsewhere)}")
+        elif close:
+            hints.append(f"did you mean {close[0]}?")
+    cmd.error(f"unrecognized arguments: {' '.join(extras)}" + (f" ({'; '.join(hints)})" if hints else ""))
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -91,53 +138,64 @@ def build_parser() -> argparse.ArgumentParser:
         prog="roamstat",
         description="Screen GPS collar fixes, measure steps and turns, test net displacement against "
         "random-walk null models and seed home-range studies.",
+        epilog="'roamstat COMMAND --help' lists the options of one command.",
     )
     parser.add_argument("--version", action="version", version=f"roamstat {__version__}")
     parser.add_argument("--debug", action="store_true", help="show the traceback of unexpected errors")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
-    inputs, analysis, output = _input_options(), _analysis_options(), _output_options()
     for name, help_text in COMMANDS.items():
-        parents = [inputs] if name == "inspect" else [inputs, analysis, output]
-        cmd = sub.add_parser(name, parents=parents, help=help_text, description=help_text)
+        cmd = sub.add_parser(name, help=help_text, description=help_text)
+        cmd.add_argument("files", nargs="+", metavar="FILE",
+                         help="CSV, GPX or Parquet files of collar fixes")
+        for title, options, commands in _OPTIONS:
+            if name in commands:
+                group = cmd.add_argument_group(title)
+                for flag, kwargs in options:
+                    group.add_argument(flag, **kwargs)
         cmd.add_argument("--debug", action="store_true", default=argparse.SUPPRESS, help=argparse.SUPPRESS)
     return parser
 
 
+def command_list() -> str:
+    """Every command with its one line, for ``roamstat`` without arguments."""
+    width = max(map(len, COMMANDS))
+    lines = [f"  {name:<{width}}  {text}" for name, text in COMMANDS.items()]
+    return "\n".join(["usage: roamstat COMMAND FILE... [options]", "", "commands:", *lines, "",
+                      "'roamstat COMMAND --help' lists the options of one command."])
+
+
+#: Config field -> argparse destination, where the two differ.
+_DEST = {"disabled_rules": "keep", "nulls": "null", "output_format": "format", "report": "no_report"}
+
+
 def config_from_args(args: argparse.Namespace) -> Config:
-    """Build the frozen run configuration from parsed arguments."""
+    """Build the frozen run configuration from parsed arguments (options a command lacks keep their defaults)."""
     from roamstat.parallel import resolve_workers
 
-    values = dict(
-        id_col=args.id_col, time_col=args.time_col, date_col=args.date_col, lat_col=args.lat_col,
-        lon_col=args.lon_col, x_col=args.x_col, y_col=args.y_col, crs=args.crs, tz=args.tz,
-        max_dop=args.max_dop, require_3d=args.require_3d, max_speed=args.max_speed,
-        spike_speed=args.spike_speed, min_quality=args.min_quality, disabled_rules=tuple(args.keep),
-        max_gap=args.max_gap, resample=args.resample,
-    )
-    if args.command != "inspect":
-        nulls = tuple(n.strip() for n in args.null.split(",") if n.strip())
-        unknown = [n for n in nulls if n not in NULL_MODELS]
-        if unknown or not nulls:
-            raise RoamstatError(f"--null {args.null!r}: choose from {','.join(NULL_MODELS)}")
-        if args.replicates < 19:
-            raise RoamstatError(f"--replicates {args.replicates}: use at least 19 (999 is the default)")
-        if not 0 < args.alpha < 1:
-            raise RoamstatError(f"--alpha {args.alpha}: give a level between 0 and 1, e.g. 0.05")
-        values.update(
-            min_step=args.min_step, bootstrap=args.bootstrap, nulls=nulls, replicates=args.replicates,
-            seed=args.seed, alpha=args.alpha, kde_bandwidth=args.kde_bandwidth,
-            mask_locations=args.mask_locations or args.mask_grid is not None, mask_grid=args.mask_grid,
-            workers=resolve_workers(args.workers), scheduler=args.scheduler,
-            report=not args.no_report, quiet=args.quiet, force=args.force, output_format=args.format,
-            low_memory=args.low_memory,
-        )
-    return Config(**values)
+    values = {f.name: getattr(args, _DEST.get(f.name, f.name)) for f in dataclasses.fields(Config)
+              if hasattr(args, _DEST.get(f.name, f.name))}
+    if "disabled_rules" in values:
+        values["disabled_rules"] = tuple(values["disabled_rules"])
+    if "nulls" in values:
+        values["nulls"] = tuple(n.strip() for n in values["nulls"].split(",") if n.strip())
+    if "report" in values:
+        values["report"] = not values["report"]
+    if "workers" in values:
+        values["workers"] = resolve_workers(values["workers"])
+    if values.get("mask_grid") is not None:
+        values["mask_locations"] = True
+    return check_config(Config(**values))
 
 
 def main(argv: list[str] | None = None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
+    if not [a for a in argv if a != "--debug"]:
+        print(command_list(), file=sys.stderr)
+        return 2
     parser = build_parser()
-    args = parser.parse_args(argv)
+    args, extras = parser.parse_known_args(argv)
+    if extras:
+        _unknown_option_error(parser, args.command, extras)
     if not args.debug:
         # Edge cases (a zero-variance fit, a divergent moment) are handled where they arise and
         # reported in the tables' notes; numpy's floating-point chatter would only alarm users.
@@ -165,9 +223,12 @@ def _dispatch(args: argparse.Namespace, argv: list[str]) -> int:
 
         print(inspect_text(args.files, cfg))
         return 0
+    from roamstat.io.times import unused_zone_note
     from roamstat.run import run_command
 
     result = run_command(args.command, args.files, args.out, cfg, argv)
+    if note := unused_zone_note(cfg.tz, result.loaded.read.tz_note):
+        print(f"roamstat: {note}", file=sys.stderr)
     if not cfg.quiet:
         print(closing_summary(result), file=sys.stderr)
     return 0

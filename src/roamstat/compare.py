@@ -32,7 +32,6 @@ import pandas as pd
 from scipy import stats
 
 from roamstat.config import NULL_MODELS
-from roamstat.errors import RoamstatError
 from roamstat.nulls import NullUnavailable, build_null, short_steps
 
 MAX_CURVE_POINTS = 200  # NSD curve evaluated at most here (memory and figure size, no source)
@@ -208,7 +207,7 @@ def test_animal(fixes_a: pd.DataFrame, steps_a: pd.DataFrame, fits, nominal_dt_s
         Uses ``nulls``, ``replicates``, ``min_steps_test``, ``min_step``.
     rng : numpy.random.Generator
         The animal's generator; each null gets a child generator spawned in the
-        fixed order of ``config.NULL_MODELS``, so a null's draws do not depend on
+        fixed order of the registry (``config.NULL_MODELS``), so a null's draws do not depend on
         which other nulls run.
 
     Returns
@@ -219,8 +218,6 @@ def test_animal(fixes_a: pd.DataFrame, steps_a: pd.DataFrame, fits, nominal_dt_s
         Null name -> ``step``, ``t_s``, ``observed_m2``, ``lo_m2``, ``hi_m2``, ``mean_m2``
         (equal-length arrays; pointwise 2.5 % / 97.5 % envelope and mean) for nulls that ran.
     """
-    if int(cfg.replicates) < 1:
-        raise RoamstatError(f"--replicates {cfg.replicates}: use at least 1 (999 is usual)")
     children = dict(zip(NULL_MODELS, rng.spawn(len(NULL_MODELS))))
     obs, problem = _observed(fixes_a, steps_a, nominal_dt_s, cfg)
     short = short_steps(_column(steps_a, "step_m"), np.size(_values(fits, "step_values")), cfg.min_step)

@@ -9,3 +9,11 @@ exception is a bug (exit 1; ``--debug`` shows the traceback).
 
 class RoamstatError(Exception):
     """A problem with the user's input or options, explained in one line."""
+
+
+class NothingKept(RoamstatError):
+    """Every input row was rejected; ``rejected`` holds them with their reasons, for rejected.csv."""
+
+    def __init__(self, message: str, rejected) -> None:
+        super().__init__(message)
+        self.rejected = rejected

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from roamstat.config import Config
 from roamstat.io.read import describe_inputs
+from roamstat.io.times import unused_zone_note
 
 
 def inspect_text(paths, cfg: Config) -> str:
@@ -11,7 +12,10 @@ def inspect_text(paths, cfg: Config) -> str:
     from roamstat.run import load, n_kept
 
     loaded = load(paths, cfg)
-    lines = [describe_inputs(loaded.read), "", "After screening and projection:"]
+    lines = [describe_inputs(loaded.read)]
+    if note := unused_zone_note(cfg.tz, loaded.read.tz_note):
+        lines.append(note)
+    lines += ["", "After screening and projection:"]
     lines.append(f"  rows read {loaded.read.n_read}, kept {n_kept(loaded.fixes)}, rejected {len(loaded.rejected)}")
     if len(loaded.rejected):
         for code, count in loaded.rejected["reason_code"].value_counts().sort_index().items():

@@ -18,8 +18,8 @@ from pathlib import Path
 import pandas as pd
 
 from roamstat import __version__
-from roamstat.config import Config
-from roamstat.errors import RoamstatError
+from roamstat.config import Config, check_config
+from roamstat.errors import NothingKept, RoamstatError
 from roamstat.io.read import ReadResult, read_inputs
 from roamstat.io.write import write_csv, write_json
 from roamstat.parallel import map_animals
@@ -96,10 +96,7 @@ def load(paths, cfg: Config, clock: StageClock | None = None, with_steps: bool =
         fixes, rejected = screen(read.rows, cfg)
         rejected = combine_rejected(read.rejected, rejected)
     if len(fixes) == 0:
-        raise RoamstatError(
-            f"no fix in {_names(paths)} passed screening ({len(rejected)} rows rejected); "
-            "see the reasons with 'roamstat clean' and relax the screening options"
-        )
+        raise NothingKept(f"no fix in {_names(paths)} passed screening ({len(rejected)} rows rejected)", rejected)
     with clock("project"):
         fixes, projections = prepare_fixes(fixes, cfg, read.input_crs)
     loaded = Loaded(read=read, fixes=fixes, rejected=rejected, projections=projections)
@@ -285,17 +282,24 @@ def prepare_out_dir(out_dir: Path, inputs, force: bool) -> Path:
 
 def run_command(command: str, paths, out_dir, cfg: Config, argv: list[str] | None = None) -> RunResult:
     """Run one command's stages and write its outputs into ``out_dir``."""
+    check_config(cfg)
     if cfg.low_memory:
         from roamstat.stream import run_streamed
 
-        return run_streamed(command, paths, out_dir, cfg, argv)
+        try:
+            return run_streamed(command, paths, out_dir, cfg, argv)
+        except NothingKept as exc:
+            all_rejected(exc, Path(out_dir), cfg)
     stages = COMMAND_STAGES[command]
     if "report" in stages and not cfg.report:
         stages = tuple(s for s in stages if s != "report")
     out_dir = prepare_out_dir(Path(out_dir), paths, cfg.force)
     clock = StageClock()
     started = time.perf_counter()
-    loaded = load(paths, cfg, clock, with_steps="steps" in stages)
+    try:
+        loaded = load(paths, cfg, clock, with_steps="steps" in stages)
+    except NothingKept as exc:
+        all_rejected(exc, out_dir, cfg)
     tables, animals = analyse(loaded, stages, cfg, clock)
     result = RunResult(loaded=loaded, tables=tables, animals=animals, out_dir=out_dir, stages=clock.stages)
     with clock("write"):
@@ -308,6 +312,14 @@ def run_command(command: str, paths, out_dir, cfg: Config, argv: list[str] | Non
     manifest = build_manifest(command, loaded, cfg, argv, clock.stages, time.perf_counter() - started)
     write_json(manifest, out_dir / MANIFEST)
     return result
+
+
+def all_rejected(exc: NothingKept, out_dir: Path, cfg: Config) -> None:
+    """Write rejected.csv for an input with no usable fix, then say where it is."""
+    path = out_dir / output_name("rejected", cfg)
+    write_table(rejected_for_output(exc.rejected, cfg), path, cfg)
+    raise RoamstatError(f"{exc}; every row's reason is in {path}; relax the screening options "
+                        "that rejected them, or switch a rule off with --keep CODE") from None
 
 
 def output_name(stem: str, cfg: Config) -> str:

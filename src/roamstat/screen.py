@@ -100,11 +100,8 @@ def screen(rows: pd.DataFrame, cfg: Config) -> tuple[pd.DataFrame, pd.DataFrame]
         time`` and the ``orig_*`` columns, in file and line order.
         ``len(fixes) + len(rejected) == len(rows)`` always.
     """
+    # ``config.check_config`` has refused codes that do not exist or are in ALWAYS_ON.
     off = set(cfg.disabled_rules)
-    locked = off.intersection(ALWAYS_ON)
-    if locked:
-        raise RoamstatError(f"--keep {sorted(locked)[0]}: rows without a usable time or latitude cannot be "
-                            "analysed; correct them in the input file instead")
     rows = rows.reset_index(drop=True)
     n = len(rows)
     reason = np.full(n, None, dtype=object)

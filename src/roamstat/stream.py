@@ -20,7 +20,7 @@ from pathlib import Path
 import pandas as pd
 
 from roamstat.config import Config
-from roamstat.errors import RoamstatError
+from roamstat.errors import NothingKept, RoamstatError
 from roamstat.io.chunks import read_in_chunks
 from roamstat.io.read import REJECTED_BASE, ReadResult
 from roamstat.io.write import StreamingCsv, write_json
@@ -148,7 +148,8 @@ def _process(command, spill: _Spill, stages, out_dir: Path, cfg: Config, clock: 
                 with clock("analyse"):
                     animals += analyse_animals(part, stages, cfg)
         if not kept:
-            raise RoamstatError("no fix passed screening; see the reasons with 'roamstat clean' and relax the screening options")
+            raise NothingKept(f"no fix passed screening ({read.n_read} rows rejected)",
+                              combine_rejected(read.rejected, concat_tables(screened, REJECTED_BASE)))
         for writer in writers.values():
             writer.close()
     except BaseException:

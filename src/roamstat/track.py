@@ -211,7 +211,7 @@ def prepare_fixes(fixes: pd.DataFrame, cfg, input_crs: str | None = None):
     out["interpolated"] = False
     out["on_grid"] = True
     if cfg.resample and len(out):
-        out = _resample(out, _duration_ns(cfg.resample, "--resample"), projected_input, input_crs)
+        out = _resample(out, duration_ns(cfg.resample, "--resample"), projected_input, input_crs)
         codes, starts = _animal_blocks(out["animal_id"])
 
     x, y, projections = _project(out, codes, starts, frame_crs, projected_input)
@@ -249,7 +249,8 @@ def _from_ns(ns: np.ndarray) -> pd.Series:
     return pd.Series(np.asarray(ns, dtype=np.int64).astype("datetime64[ns]")).dt.tz_localize("UTC")
 
 
-def _duration_ns(text: str, option: str) -> int:
+def duration_ns(text: str, option: str) -> int:
+    """A positive duration such as ``30min``, ``6h`` or ``1d`` in nanoseconds (``option`` names it in errors)."""
     # "1d" and "6H" as people write them; pandas wants "1D" and "6h".
     spelled = re.sub(r"(\d)\s*d(?![a-z])", r"\1D", str(text).strip().lower())
     try:
@@ -264,7 +265,7 @@ def _duration_ns(text: str, option: str) -> int:
 def _gap_threshold_s(cfg, nominal_dt_s: np.ndarray) -> np.ndarray:
     """Longest time between fixes that stays within a segment, per animal."""
     if cfg.max_gap:
-        return np.full(nominal_dt_s.shape, _duration_ns(cfg.max_gap, "--max-gap") / 1e9)
+        return np.full(nominal_dt_s.shape, duration_ns(cfg.max_gap, "--max-gap") / 1e9)
     threshold = cfg.gap_factor * nominal_dt_s
     return np.where(np.isfinite(threshold), threshold, np.inf)
 

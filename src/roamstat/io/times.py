@@ -99,3 +99,22 @@ def _epoch(text: pd.Series, present: pd.Series, where: str) -> pd.Series:
         )
     out = pd.to_datetime(numbers.where(np.isfinite(numbers)), unit=unit, utc=True, errors="coerce")
     return out.astype("datetime64[ns, UTC]")
+
+
+_ZONE_FREE = {"offsets in the data", "Unix epoch"}  # ways of reading in which --tz plays no part
+
+
+def unused_zone_note(tz: str, how_read: str) -> str:
+    """A note when ``--tz`` names a zone that no time needed, else "".
+
+    Parameters
+    ----------
+    tz : str
+        The ``--tz`` option.
+    how_read : str
+        ``ReadResult.tz_note``: how the times were read ("; "-joined over files).
+    """
+    if str(tz).upper() in ("UTC", "Z", "GMT", "ETC/UTC") or not how_read or not set(how_read.split("; ")) <= _ZONE_FREE:
+        return ""
+    return (f"note: --tz {tz} changed nothing: every time in the input carries its own UTC offset "
+            "(or is a Unix epoch time), and roamstat keeps those")

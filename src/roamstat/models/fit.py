@@ -75,7 +75,7 @@ from roamstat.models.bootstrap import bootstrap_ci, ci_json
 from roamstat.models.powerlaw_tail import MIN_TAIL, fit_power_law, fit_truncated_power_law
 from roamstat.models.select import akaike_weights, ks_statistic, vuong_test
 from roamstat.models.steps import FULL_RANGE, TAIL_REFIT, fit_step_family
-from roamstat.models.turns import fit_uniform, fit_von_mises, fit_wrapped_cauchy
+from roamstat.models.turns import TURN_FAMILIES
 
 MIN_VALUES = 10  # fewest observations for any fit (common practice, no source)
 VUONG_P = 0.1  # significance of the sign of the Vuong statistic (Clauset et al. 2009, §5)
@@ -172,9 +172,8 @@ def fit_animal(steps_a: pd.DataFrame, cfg, rng: np.random.Generator) -> AnimalFi
         candidates.append(_Candidate("turn", "turn", "none", turns, None, _join(problem, turn_note)))
         notes.append(f"turn: {problem}")
     else:
-        for name, fitter in (("uniform", fit_uniform), ("von_mises", fit_von_mises),
-                             ("wrapped_cauchy", fit_wrapped_cauchy)):
-            candidates.append(_attempt("turn", "turn", name, turns, fitter, turn_note))
+        for name, family in TURN_FAMILIES.items():
+            candidates.append(_attempt("turn", "turn", name, turns, family.fit, turn_note))
 
     rows = _rows(candidates)
     if cfg.bootstrap > 0:

@@ -53,6 +53,11 @@ class StepFamily:
     fit_full: Callable[[np.ndarray], dict]  # MLE on x > 0, location 0
     fit_tail: Callable[[np.ndarray, float], dict] | None  # MLE left-truncated at xmin (tail families only)
     moment: Callable[[dict, int, float], float]  # E[X^k | X >= a]
+    label: str = ""  # the name in prose (the report's methods text), when not the plain name
+
+    @property
+    def prose(self) -> str:
+        return self.label or self.name
 
 
 def _expon_args(p):
@@ -149,12 +154,13 @@ FAMILIES = {
                    _expon_moment),
         StepFamily("gamma", ("shape", "scale"), stats.gamma, _gamma_args, _gamma_fit, None, _gamma_moment),
         StepFamily("weibull", ("shape", "scale"), stats.weibull_min, _weibull_args, _weibull_fit, None,
-                   _weibull_moment),
+                   _weibull_moment, "Weibull"),
         StepFamily("lognormal", ("meanlog", "sdlog"), stats.lognorm, _lognorm_args, _lognorm_fit,
                    _lognorm_fit_tail, _lognorm_moment),
     )
 }
-FULL_RANGE = ("exponential", "gamma", "weibull", "lognormal")
+#: The registry of light-tailed step families: every one is fitted to all steps (the ``full`` set).
+FULL_RANGE = tuple(FAMILIES)
 TAIL_REFIT = tuple(name for name, f in FAMILIES.items() if f.fit_tail is not None)
 
 

@@ -27,6 +27,7 @@ from __future__ import annotations
 
 import math
 import warnings
+from typing import Callable, NamedTuple
 
 import numpy as np
 from scipy import optimize, special, stats
@@ -200,3 +201,18 @@ def fit_wrapped_cauchy(x: np.ndarray) -> WrappedCauchyTurns:
     model = WrappedCauchyTurns(res.x[0], float(special.expit(res.x[1])), x.size, 0.0)
     model.loglik = float(np.sum(model.logpdf(x)))
     return model
+
+
+class TurnFamily(NamedTuple):
+    """A registered turning-angle family: its fitting function and its name in prose."""
+
+    fit: Callable[[np.ndarray], TurnModel]
+    prose: str
+
+
+#: The registry of turning-angle families, all compared by AIC (``fit_animal`` fits each).
+TURN_FAMILIES = {
+    UniformTurns.name: TurnFamily(fit_uniform, "uniform"),
+    VonMisesTurns.name: TurnFamily(fit_von_mises, "von Mises"),
+    WrappedCauchyTurns.name: TurnFamily(fit_wrapped_cauchy, "wrapped Cauchy"),
+}

@@ -4,7 +4,8 @@ Each null is built from one animal's fits (the protocol of
 :mod:`roamstat.models.base`, never a family name) and offers
 ``simulate(n_steps, n_reps, rng, eval_idx)`` -> squared displacement (m^2) of
 ``n_reps`` walks at the given step indices.  :func:`build_null` builds one by
-its name in ``Config.nulls``; the correlated random walk also gives the
+its name in ``Config.nulls``, looked up in the registry
+:data:`roamstat.registry.NULLS`; the correlated random walk also gives the
 Kareiva & Shigesada (1983) expectation (:mod:`roamstat.nulls.analytic`).
 """
 
@@ -16,12 +17,12 @@ from roamstat.nulls.levy import LevyNull
 from roamstat.nulls.observed import NO_SHORT_STEPS, ShortSteps, short_steps
 from roamstat.nulls.shuffle import ShuffleNull
 from roamstat.nulls.walk import NullUnavailable, Walk, simulate_nsd
+from roamstat.registry import NULLS
 
-NULLS = {"crw": CrwNull, "shuffle": ShuffleNull, "levy": LevyNull}
 
 
 def build_null(name: str, fits, short: ShortSteps = NO_SHORT_STEPS) -> Walk:
-    """The null walk ``name`` ("crw", "shuffle" or "levy") for one animal.
+    """The null walk ``name`` (a name in :data:`roamstat.registry.NULLS`) for one animal.
 
     Parameters
     ----------
@@ -41,8 +42,8 @@ def build_null(name: str, fits, short: ShortSteps = NO_SHORT_STEPS) -> Walk:
     NullUnavailable
         When the animal lacks what this null needs (the message says what).
     """
-    return NULLS[name](fits, short)
+    return NULLS[name].load()(fits, short)
 
 
-__all__ = ["CrwNull", "LevyNull", "NULLS", "NO_SHORT_STEPS", "NullUnavailable", "ShortSteps", "ShuffleNull",
+__all__ = ["CrwNull", "LevyNull", "NO_SHORT_STEPS", "NullUnavailable", "ShortSteps", "ShuffleNull",
            "Walk", "build_null", "expected_nsd", "expected_nsd_symmetric", "short_steps", "simulate_nsd"]

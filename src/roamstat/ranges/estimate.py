@@ -8,6 +8,7 @@ areas on the ellipsoid.  Interpolated fixes are left out.
 from __future__ import annotations
 
 import math
+from typing import Callable, NamedTuple
 
 import numpy as np
 import pandas as pd
@@ -19,7 +20,6 @@ from roamstat.ranges.mask import MASK_NOTE, MASKED_FRAME, hidden_origin, positiv
 from roamstat.ranges.mcp import mcp_polygon
 from roamstat.ranges.schoener import autocorrelation_note, schoener_ratio
 
-RANGES = (("mcp", 100), ("mcp", 95), ("kde", 95), ("kde", 50))
 MIN_FIXES = 10  # fewer fixes make no useful range (judgement, no source)
 CURVE_POINTS = 8  # sample sizes on the area curve
 NOT_LEVELLED_PCT = 10.0  # area still growing by this much over the last quarter of fixes (judgement, no source)
@@ -32,18 +32,49 @@ def user_bandwidth(cfg) -> float | None:
     return positive_metres(getattr(cfg, "kde_bandwidth", None), "--kde-bandwidth", "500")
 
 
+def _mcp_shapes(x, y, h_user: float | None, levels) -> dict:
+    out = {}
+    for level in levels:
+        poly, n_used = mcp_polygon(x, y, level)
+        out[level] = (poly, n_used, None)
+    return out
+
+
+def _kde_shapes(x, y, h_user: float | None, levels) -> dict:
+    h = h_user if h_user is not None else reference_bandwidth(x, y)
+    if not h > 0:
+        return {}
+    grid = density_grid(x, y, h)
+    return {level: (isopleth(grid, level / 100.0), len(x), h) for level in levels}
+
+
+class RangeMethod(NamedTuple):
+    """A registered home-range method.
+
+    ``shapes(x, y, h_user, levels)`` -> {level: (geometry in metres, n_fixes used, bandwidth_m or
+    None)} for planar equal-area coordinates in time order; a level it cannot draw is left out.
+    ``prose`` names the method, with its reference, in the report's methods text.
+    """
+
+    levels: tuple[int, ...]
+    shapes: Callable
+    prose: str
+
+
+#: The registry of home-range methods (``method`` in ranges.csv), in output order.
+RANGE_METHODS = {
+    "mcp": RangeMethod((100, 95), _mcp_shapes, "minimum convex polygons (Mohr 1947)"),
+    "kde": RangeMethod((95, 50), _kde_shapes, "fixed-kernel utilization distributions with the reference "
+                       "bandwidth (Worton 1989)"),
+}
+#: Every (method, level) row of ranges.csv, in order.
+RANGES = tuple((name, level) for name, method in RANGE_METHODS.items() for level in method.levels)
+
+
 def range_shapes(x, y, h_user: float | None) -> dict:
     """{(method, level): (geometry in metres, n_fixes, bandwidth_m or None)} for every range."""
-    out = {}
-    for level in (100, 95):
-        poly, n_used = mcp_polygon(x, y, level)
-        out[("mcp", level)] = (poly, n_used, None)
-    h = h_user if h_user is not None else reference_bandwidth(x, y)
-    if h > 0:
-        grid = density_grid(x, y, h)
-        for level in (95, 50):
-            out[("kde", level)] = (isopleth(grid, level / 100.0), len(x), h)
-    return out
+    return {(name, level): shape for name, method in RANGE_METHODS.items()
+            for level, shape in method.shapes(x, y, h_user, method.levels).items()}
 
 
 def area_curve(x, y, h_user: float | None) -> pd.DataFrame:

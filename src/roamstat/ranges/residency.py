@@ -48,6 +48,7 @@ from scipy.optimize import least_squares
 from scipy.special import expit
 
 from roamstat.ranges.frames import observed_fixes
+from roamstat.registry import UNBOUNDED_WALK_NULL
 
 MODELS = ("sedentary", "resident", "disperser", "migrant", "nomad")
 N_PARAMS = {"sedentary": 1, "resident": 2, "disperser": 3, "migrant": 5, "nomad": 1}
@@ -360,8 +361,8 @@ def finalise_residency(residency: pd.DataFrame, null_tests: pd.DataFrame | None 
         return out
     candidate = out["pattern"].isin(["resident", "sedentary"])
     if null_tests is not None and len(null_tests) and {"animal_id", "null_model", "verdict"} <= set(null_tests.columns):
-        crw = null_tests[null_tests["null_model"].astype(str) == "crw"]
-        farther = set(crw.loc[crw["verdict"].astype(str) == "farther", "animal_id"].astype(str))
+        walk = null_tests[null_tests["null_model"].astype(str) == UNBOUNDED_WALK_NULL]
+        farther = set(walk.loc[walk["verdict"].astype(str) == "farther", "animal_id"].astype(str))
         candidate &= ~out["animal_id"].astype(str).isin(farther)
     out["range_study_candidate"] = candidate.astype(bool)
     return out

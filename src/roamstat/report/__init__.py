@@ -30,7 +30,7 @@ from roamstat.report.html import esc, figure, key_values, page, short_id, table
 from roamstat.report.overview import (animal_ids, animal_rows, comparison_table, null_models,
                                       quality_table)
 from roamstat.report.slug import safe_name, safe_names
-from roamstat.report.text import CAUTIONS, MASKED_NOTE, METHODS, REFERENCES, UNMASKED_NOTE
+from roamstat.report.text import CAUTIONS, MASKED_NOTE, REFERENCES, UNMASKED_NOTE, methods_html
 
 __all__ = ["write_report", "safe_name", "safe_names"]
 
@@ -107,7 +107,7 @@ def write_report(out_dir: Path, tables: dict[str, pd.DataFrame], animals: list, 
                     f"{MAX_ANIMAL_SECTIONS} in id order; every animal is in the tables above and in the CSV "
                     "outputs.</p>")
     body.extend(sections)
-    body.append(_methods())
+    body.append(_methods(nulls or tuple(getattr(cfg, "nulls", ()))))
     body.append('<h2 id="cautions">Cautions</h2>' + CAUTIONS)
     body.append(f'<p class="note">{esc(MASKED_NOTE if masked else UNMASKED_NOTE)}</p>')
     path = out_dir / "report.html"
@@ -234,6 +234,6 @@ def _animal_section(animal_id: str, name: str, result, tables: dict, written: li
     return "".join(parts)
 
 
-def _methods() -> str:
+def _methods(nulls) -> str:
     refs = "".join(f"<li>{r}</li>" for r in REFERENCES)
-    return f'<h2 id="methods">Methods</h2>{METHODS}<h3>References</h3><ul>{refs}</ul>'
+    return f'<h2 id="methods">Methods</h2>{methods_html(nulls)}<h3>References</h3><ul>{refs}</ul>'

@@ -2,29 +2,46 @@
 
 from __future__ import annotations
 
-METHODS = """
+def methods_html(nulls) -> str:
+    """The methods text, naming the families, range methods and the null models of this run.
+
+    The lists come from the registries (``models.steps.FAMILIES``, ``models.turns.TURN_FAMILIES``,
+    ``registry.NULLS``, ``ranges.estimate.RANGE_METHODS``), so a new entry appears here by itself.
+    """
+    from roamstat.models.steps import FAMILIES
+    from roamstat.models.turns import TURN_FAMILIES
+    from roamstat.ranges.estimate import RANGE_METHODS
+    from roamstat.registry import NULLS
+
+    null_text = _and([NULLS[n].methods for n in nulls if n in NULLS]) or "no null walk (none was run)"
+    return f"""
 <p>Fixes were screened by explicit rules, each rejected row keeping a reason code (table above).
 Kept fixes were projected per animal to a planar frame in metres centred on its first fix; step
 lengths and headings are geodesic on the WGS84 ellipsoid (Karney 2013), and turning angles are
 the change of heading between consecutive steps (positive = clockwise, a right turn).</p>
-<p>Step lengths were fitted by maximum likelihood with exponential, gamma, Weibull and lognormal
+<p>Step lengths were fitted by maximum likelihood with {_and([f.prose for f in FAMILIES.values()])}
 families, and power-law and truncated power-law tails above a lower bound chosen by the
 Kolmogorov–Smirnov criterion, compared with the likelihood-ratio test of Vuong as set out by
-Clauset, Shalizi &amp; Newman (2009); turning angles with uniform, von Mises and wrapped Cauchy
+Clauset, Shalizi &amp; Newman (2009); turning angles with {_and([f.prose for f in TURN_FAMILIES.values()])}
 families. Models were ranked by AIC within each comparison set.</p>
 <p>Each animal's net displacement and its whole net-squared-displacement (NSD) curve were compared
-with null walks built from its own fitted statistics: a correlated random walk (Kareiva &amp;
-Shigesada 1983; Turchin 1998), a resampling null that shuffles the observed steps and turns, and a
-Lévy walk with the fitted power-law tail. Monte Carlo p-values, pointwise envelopes and a global
-extreme-rank envelope test (Myllymäki et al. 2017) give the evidence; q-values control the false
-discovery rate across the animals of the run for each null model (Benjamini &amp; Hochberg 1995).</p>
+with null walks built from its own fitted statistics: {null_text}. Monte Carlo p-values, pointwise
+envelopes and a global extreme-rank envelope test (Myllymäki et al. 2017) give the evidence; q-values
+control the false discovery rate across the animals of the run for each null model (Benjamini &amp;
+Hochberg 1995).</p>
 <p>Residency patterns were classified by fitting the NSD-through-time models of Bunnefeld et al.
-(2011) and ranking them by AIC. First home-range estimates are minimum convex polygons (Mohr 1947)
-and fixed-kernel utilization distributions with the reference bandwidth (Worton 1989), with the
-area–sample-size curve (Harris et al. 1990) and Schoener's ratio as an autocorrelation diagnostic
-(Swihart &amp; Slade 1985). Fix-rate and positional-error considerations follow
-Bjørneraas et al. (2010); path tortuosity measures follow Benhamou (2004).</p>
+(2011) and ranking them by AIC. First home-range estimates are
+{_and([m.prose for m in RANGE_METHODS.values()])}, with the area–sample-size curve (Harris et al. 1990)
+and Schoener's ratio as an autocorrelation diagnostic (Swihart &amp; Slade 1985). Fix-rate and
+positional-error considerations follow Bjørneraas et al. (2010); path tortuosity measures follow
+Benhamou (2004).</p>
 """
+
+
+def _and(items: list[str]) -> str:
+    """"a", "a and b", "a, b and c"."""
+    return " and ".join([", ".join(items[:-1]), items[-1]]) if len(items) > 1 else "".join(items)
+
 
 REFERENCES = [
     "Benhamou, S. (2004). How to reliably estimate the tortuosity of an animal's path: straightness, "
@@ -52,6 +69,8 @@ REFERENCES = [
     "Ecology 66: 1176–1184.",
     "Turchin, P. (1998). Quantitative Analysis of Movement: Measuring and Modeling Population Redistribution "
     "in Animals and Plants. Sinauer, Sunderland MA.",
+    "Viswanathan, G. M., Buldyrev, S. V., Havlin, S., da Luz, M. G. E., Raposo, E. P. &amp; Stanley, H. E. "
+    "(1999). Optimizing the success of random searches. Nature 401: 911–914.",
     "Worton, B. J. (1989). Kernel methods for estimating the utilization distribution in home-range studies. "
     "Ecology 70: 164–168.",
 ]
