@@ -165,6 +165,13 @@ def _read_file(path: str, cfg) -> _FileRead:
     return _FileRead(rows, rejected, info, tz_note)
 
 
+#: Reason codes of rows the reader drops (the screen's are ``screen.REASONS``).
+READ_REASONS = {
+    "field_count": "the row has a different number of fields than the header line",
+    "header_repeat": "a repeated header line",
+}
+
+
 def _read_rejections(table) -> np.ndarray:
     """Reason code per data record: 'field_count', 'header_repeat' or '' (readable)."""
     codes = np.where(table.field_counts != len(table.header), "field_count", "").astype(object)
@@ -181,8 +188,7 @@ def _rejected_rows(values, lines, codes, mapping, path, stem, extra) -> pd.DataF
     n = len(values)
     id_col = mapping.columns.get("animal_id")
     animal = values[id_col].str.strip().to_numpy(dtype=object) if id_col else np.full(n, stem, dtype=object)
-    reason = np.where(codes == "header_repeat", "a repeated header line",
-                      "the row has a different number of fields than the header line")
+    reason = np.where(codes == "header_repeat", READ_REASONS["header_repeat"], READ_REASONS["field_count"])
     out = pd.DataFrame({"source_file": path, "source_row": np.asarray(lines, dtype=np.int64), "animal_id": animal,
                         "reason_code": codes, "reason": reason})
     for name in values.columns:
