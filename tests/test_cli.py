@@ -236,3 +236,10 @@ def test_all_rejected_input_still_writes_rejected_csv_and_names_it(low_memory, t
     rejected = pd.read_csv(out / "rejected.csv")
     assert sorted(rejected["source_row"]) == [2, 3, 4]
     assert sorted(rejected["reason_code"]) == ["bad_time", "null_island", "null_island"]
+
+
+def test_file_after_the_options_is_pointed_out(sample_csv, tmp_path, capsys):
+    code, err = usage_error(["clean", sample_csv, "--out", tmp_path / "o", "more.csv"], capsys)
+    assert code == 2 and "give every FILE before the options" in err
+    code, err = usage_error(["clean", sample_csv, "--out", tmp_path / "o", "--quite", "x"], capsys)
+    assert code == 2 and "FILE before" not in err

@@ -130,6 +130,9 @@ def _unknown_option_error(parser: argparse.ArgumentParser, command: str, extras:
             hints.append(f"{word} is used only by {', '.join(elsewhere)}")
         elif close:
             hints.append(f"did you mean {close[0]}?")
+    # A word that is not the value of an unknown option is a file given after the options.
+    if any(not e.startswith("-") and (i == 0 or not extras[i - 1].startswith("-")) for i, e in enumerate(extras)):
+        hints.append("give every FILE before the options")
     cmd.error(f"unrecognized arguments: {' '.join(extras)}" + (f" ({'; '.join(hints)})" if hints else ""))
 
 
