@@ -12,12 +12,14 @@ import math
 import numpy as np
 import pandas as pd
 
+from roamstat.config import Config
 from roamstat.ranges import geojson
-from roamstat.ranges.frames import animal_frame, observed_fixes
+from roamstat.ranges.frames import animal_frame
 from roamstat.ranges.kde import density_grid, isopleth, reference_bandwidth
-from roamstat.ranges.mask import MASK_NOTE, MASKED_FRAME, hidden_origin, positive_metres
+from roamstat.ranges.mask import MASK_NOTE, MASKED_FRAME, HiddenOrigin, hidden_origin, positive_metres
 from roamstat.ranges.mcp import mcp_polygon
 from roamstat.ranges.schoener import autocorrelation_note, schoener_ratio
+from roamstat.rows import located
 
 RANGES = (("mcp", 100), ("mcp", 95), ("kde", 95), ("kde", 50))
 MIN_FIXES = 10  # fewer fixes make no useful range (judgement, no source)
@@ -86,7 +88,7 @@ def _gain_pct(curve: pd.DataFrame, method: str, level: int, n: int) -> float:
     return 100.0 * (part[n] - part[quarter]) / part[quarter]
 
 
-def ranges_animal(fixes_a: pd.DataFrame, cfg=None, rng: np.random.Generator | None = None):
+def ranges_animal(fixes_a: pd.DataFrame, cfg: Config | None = None, origin: HiddenOrigin | None = None):
     """MCP (100 %, 95 %) and KDE (95 %, 50 %) ranges of one animal.
 
     Parameters
@@ -96,9 +98,9 @@ def ranges_animal(fixes_a: pd.DataFrame, cfg=None, rng: np.random.Generator | No
     cfg : roamstat.config.Config, optional
         Uses ``kde_bandwidth`` (metres; None for h_ref), ``mask_locations``
         and ``mask_grid``.
-    rng : numpy.random.Generator, optional
-        Only for the masking offset, and only in tests; see
-        :func:`roamstat.ranges.mask.hidden_origin`.
+    origin : HiddenOrigin, optional
+        The run's hidden origin when masking (one per run, shared with
+        every masked output).  Left out, one is drawn for this animal alone.
 
     Returns
     -------
@@ -120,9 +122,10 @@ def ranges_animal(fixes_a: pd.DataFrame, cfg=None, rng: np.random.Generator | No
     Mohr, C. O. (1947). Am. Midl. Nat. 37, 223-249.
     Swihart, R. K. & Slade, N. A. (1985). Ecology 66, 1176-1184.
     """
-    masked = bool(getattr(cfg, "mask_locations", False))
+    cfg = cfg or Config()
+    masked = cfg.mask_locations
     h_user = user_bandwidth(cfg)
-    obs = observed_fixes(fixes_a)
+    obs = located(fixes_a)
     animal_id = str(fixes_a["animal_id"].iloc[0]) if len(fixes_a) else ""
     n = len(obs)
     if n < MIN_FIXES:
@@ -137,9 +140,10 @@ def ranges_animal(fixes_a: pd.DataFrame, cfg=None, rng: np.random.Generator | No
     shapes = range_shapes(x, y, h_user)
     curve = area_curve(x, y, h_user)
     if masked:
-        origin = hidden_origin(x, y, getattr(cfg, "mask_grid", None), rng)
-        place, inverse, lon_centre = origin.geometry, MASKED_FRAME.inverse, 0.0
-        track_x, track_y = origin.xy(x, y)
+        if origin is None:
+            origin = hidden_origin(obs["lat"], obs["lon"], cfg.mask_grid)
+        place, inverse, lon_centre = (lambda g: origin.geometry(g, frame)), MASKED_FRAME.inverse, 0.0
+        track_x, track_y = origin.xy(obs["lon"], obs["lat"])
     else:
         place, inverse, lon_centre = (lambda g: g), frame.inverse, frame.lon0
         track_x, track_y = x, y
