@@ -232,6 +232,8 @@ def _import_stage_modules(stages) -> None:
 
 
 def concat_tables(frames: list[pd.DataFrame], empty_columns=()) -> pd.DataFrame:
-    """Non-empty frames stacked, or an empty table with the given columns."""
-    frames = [f for f in frames if len(f)]
-    return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(columns=list(empty_columns))
+    """Non-empty frames stacked; else the first frame's (empty) layout, or the given columns without frames."""
+    filled = [f for f in frames if len(f)]
+    if filled:
+        return pd.concat(filled, ignore_index=True)
+    return frames[0].reset_index(drop=True) if frames else pd.DataFrame(columns=list(empty_columns))
