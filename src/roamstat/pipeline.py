@@ -199,6 +199,24 @@ def animal_tasks(loaded: Loaded, stages: tuple, cfg: Config) -> list[AnimalTask]
     return tasks
 
 
+def analyse(loaded: Loaded, stages: tuple, cfg: Config, clock: StageClock | None = None,
+            executor: AnimalExecutor | None = None) -> tuple[dict, list[AnimalResult]]:
+    """Per-animal stages on ``executor`` (one opened for this call when None), then the deployment-level ones."""
+    per_animal = [s for s in stages if s in PER_ANIMAL_STAGES]
+    if not per_animal:
+        return {}, []
+    clock = clock or StageClock()
+    with clock("analyse:" + "+".join(per_animal)):
+        if executor is None:
+            with AnimalExecutor(cfg.workers, cfg.scheduler, cfg.quiet) as own:
+                animals = analyse_animals(loaded, stages, cfg, own)
+        else:
+            animals = analyse_animals(loaded, stages, cfg, executor)
+    with clock("deployment"):
+        tables = deployment_tables(animals, stages, cfg)
+    return tables, animals
+
+
 def analyse_animals(loaded: Loaded, stages: tuple, cfg: Config, executor: AnimalExecutor) -> list[AnimalResult]:
     """The per-animal stages for every animal of ``loaded``, in sorted id order."""
     _import_stage_modules(stages)

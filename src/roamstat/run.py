@@ -19,8 +19,7 @@ from roamstat.io.write import write_json
 from roamstat.manifest import MANIFEST, build_manifest, run_info
 from roamstat.outputs import masking_origin, prepare_out_dir, report_tables, write_tables
 from roamstat.parallel import AnimalExecutor
-from roamstat.pipeline import (PER_ANIMAL_STAGES, RunResult, StageClock, analyse_animals, command_stages,
-                               deployment_tables, load)
+from roamstat.pipeline import RunResult, StageClock, analyse, command_stages, load
 from roamstat.geo import unit_vector_sum
 from roamstat.stream import BATCH_ANIMALS, CHUNK_RECORDS, check_streamable, streamed
 
@@ -64,13 +63,7 @@ def in_memory(paths, stages: tuple, out_dir: Path, cfg: Config, clock: StageCloc
     """Load every fix, analyse every animal, write the tables."""
     loaded = load(paths, cfg, clock, with_steps="steps" in stages)
     loaded.origin = masking_origin(cfg, unit_vector_sum(loaded.read.rows["lat"], loaded.read.rows["lon"]), origin)
-    tables, animals = {}, []
-    per_animal = [s for s in stages if s in PER_ANIMAL_STAGES]
-    if per_animal:
-        with clock("analyse:" + "+".join(per_animal)):
-            animals = analyse_animals(loaded, stages, cfg, executor)
-        with clock("deployment"):
-            tables = deployment_tables(animals, stages, cfg)
+    tables, animals = analyse(loaded, stages, cfg, clock, executor)
     with clock("write"):
         write_tables(out_dir, loaded, tables, cfg)
     return RunResult(loaded=loaded, tables=tables, animals=animals)
