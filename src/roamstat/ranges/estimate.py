@@ -2,7 +2,7 @@
 
 Everything is computed in a Lambert azimuthal equal-area frame centred on the
 animal's first observed fix (:mod:`roamstat.ranges.frames`), so areas are
-areas on the ellipsoid.  Interpolated fixes are left out.
+areas on the ellipsoid.  Only observed fixes are used (:func:`roamstat.rows.located`).
 """
 
 from __future__ import annotations
@@ -29,9 +29,9 @@ ROW_COLUMNS = ["method", "level", "area_km2", "n_fixes", "bandwidth_m", "schoene
                "area_gain_last_quarter_pct", "note", "masked"]
 
 
-def user_bandwidth(cfg) -> float | None:
+def user_bandwidth(cfg: Config) -> float | None:
     """``cfg.kde_bandwidth`` checked, or None for the reference bandwidth."""
-    return positive_metres(getattr(cfg, "kde_bandwidth", None), "--kde-bandwidth", "500")
+    return positive_metres(cfg.kde_bandwidth, "--kde-bandwidth", "500")
 
 
 def range_shapes(x, y, h_user: float | None) -> dict:
