@@ -88,12 +88,12 @@ def test_inspect_writes_nothing(sample_csv, tmp_path, capsys, monkeypatch):
 
 
 def test_unexpected_errors_point_to_debug(sample_csv, tmp_path, capsys, monkeypatch):
-    import roamstat.run
+    import roamstat.pipeline
 
     def boom(*a, **k):
         raise ZeroDivisionError("simulated bug")
 
-    monkeypatch.setattr(roamstat.run, "compute_steps", boom)
+    monkeypatch.setattr(roamstat.pipeline, "compute_steps", boom)
     code, _, err = run_cli("steps", sample_csv, "--out", tmp_path / "o", capsys=capsys)
     assert code == 1
     assert "--debug" in err and "Traceback" not in err

@@ -8,7 +8,7 @@ from pathlib import Path
 import pytest
 
 from roamstat.cli import build_parser, config_from_args, main
-from roamstat.stream import run_streamed
+from roamstat.run import run_command
 
 SAMPLE = Path(__file__).resolve().parents[1] / "sample_tracks" / "collars.csv"
 TABLES = ["fixes.csv", "rejected.csv", "steps.csv", "summary.csv", "fits.csv", "null_tests.csv",
@@ -36,8 +36,8 @@ def test_streamed_tables_are_byte_identical(tmp_path, chunk_records, batch_anima
     assert main(["run", *inputs, "--out", str(plain), "--replicates", "19", "--quiet", "--no-report"]) == 0
     args = build_parser().parse_args(["run", *inputs, "--out", str(streamed), "--replicates", "19", "--quiet",
                                       "--no-report", "--low-memory"])
-    run_streamed("run", inputs, streamed, config_from_args(args), [],
-                 chunk_records=chunk_records, batch_animals=batch_animals)
+    run_command("run", inputs, streamed, config_from_args(args), [],
+                chunk_records=chunk_records, batch_animals=batch_animals)
     for name in TABLES:
         assert (streamed / name).read_bytes() == (plain / name).read_bytes(), name
     manifest = [json.loads((d / "manifest.json").read_text()) for d in (plain, streamed)]

@@ -13,7 +13,7 @@ from shapely.geometry import shape
 from ranges_sim import independent_normal
 from roamstat.config import Config
 from roamstat.errors import RoamstatError
-from roamstat.ranges import mask_fixes, ranges_animal
+from roamstat.ranges import hidden_origin, mask_fixes, ranges_animal
 
 GEOD = Geod(ellps="WGS84")
 
@@ -46,10 +46,13 @@ def test_masked_geojson_reveals_no_true_position():
     # Masking moves outlines but keeps their areas on the ellipsoid (pyproj.Geod, Karney 2013).
     for feat, row in zip(features, rows_true):
         assert abs(GEOD.geometry_area_perimeter(shape(feat["geometry"]))[0]) / 1e6 == pytest.approx(row["area_km2"], rel=2e-3)
-    # Figures get coordinates relative to the hidden origin, not the true frame.
+    # Figures get coordinates relative to the hidden origin, not the true frame: distances between
+    # fixes are kept (geodesic, pyproj.Geod; Karney 2013), positions are not.
     _, _, true_extras = ranges_animal(fixes, Config())
-    shift = extras["track_xy"].to_numpy() - true_extras["track_xy"].to_numpy()
-    assert np.allclose(shift, shift[0]) and np.hypot(*shift[0]) > 0
+    xy = extras["track_xy"].to_numpy()
+    d_true = GEOD.inv(fixes["lon"][:-1], fixes["lat"][:-1], fixes["lon"][1:], fixes["lat"][1:])[2]
+    assert np.allclose(np.hypot(*np.diff(xy, axis=0).T), d_true, rtol=1e-3)
+    assert np.min(np.hypot(*(xy - true_extras["track_xy"].to_numpy()).T)) > 100.0
 
 
 def test_each_masked_run_draws_a_new_hidden_origin():
@@ -62,7 +65,8 @@ def test_each_masked_run_draws_a_new_hidden_origin():
 def test_grid_masking_puts_fixes_on_cell_centres():
     fixes = independent_normal(200, 3000.0, np.random.default_rng(4))
     grid = 1000.0
-    _, _, extras = ranges_animal(fixes, Config(mask_locations=True, mask_grid=grid), rng=np.random.default_rng(1))
+    origin = hidden_origin(fixes["lat"], fixes["lon"], grid, np.random.default_rng(1))
+    _, _, extras = ranges_animal(fixes, Config(mask_locations=True, mask_grid=grid), origin)
     xy = extras["track_xy"].to_numpy()
     assert np.allclose(np.mod(xy, grid), grid / 2)
 
@@ -71,7 +75,7 @@ def test_mask_fixes_drops_positions_and_raw_text():
     fixes = independent_normal(50, 800.0, np.random.default_rng(6))
     fixes["orig_lat"] = fixes["lat"].map(lambda v: f"{v:.6f}")
     fixes["x_in"] = fixes["x_m"]
-    out = mask_fixes(fixes, Config(mask_locations=True))
+    out = mask_fixes(fixes, hidden_origin(fixes["lat"], fixes["lon"]))
     assert not {"lat", "lon", "x_in", "orig_lat"} & set(out.columns)
     assert out["masked"].all() and len(out) == len(fixes)
     # Relative geometry is kept: distances between fixes agree with the geodesic ones (Karney 2013).
@@ -88,13 +92,15 @@ def test_bad_mask_grid_is_a_user_error():
         ranges_animal(fixes, Config(mask_locations=True, mask_grid=0.0))
 
 
-def test_planar_only_table_is_masked_per_animal():
-    # A table of planar coordinates only (as the run builds for rejected fixes) is still masked: each
-    # animal moves by its own hidden offset, distances within an animal are kept (common practice, no source).
-    a = independent_normal(30, 800.0, np.random.default_rng(1))[["animal_id", "x_m", "y_m"]]
-    b = a.assign(animal_id="b2")
-    table = pd.concat([a, b], ignore_index=True)
-    out = mask_fixes(table, Config(mask_locations=True))
-    shift = out[["x_m", "y_m"]].to_numpy() - table[["x_m", "y_m"]].to_numpy()
-    assert np.allclose(shift[:30], shift[0]) and np.allclose(shift[30:], shift[30])
-    assert not np.allclose(shift[0], shift[30]) and np.hypot(*shift[0]) > 0
+def test_one_origin_masks_outlines_and_fixes_alike():
+    # The MCP 100 % outline's vertices are fixes (Mohr 1947): masked with the same origin, each
+    # vertex of the masked outline is a masked fix (common practice, no source).
+    fixes = independent_normal(80, 2000.0, np.random.default_rng(3))
+    origin = hidden_origin(fixes["lat"], fixes["lon"], rng=np.random.default_rng(5))
+    _, _, extras = ranges_animal(fixes, Config(mask_locations=True), origin)
+    masked = mask_fixes(fixes, origin)[["x_m", "y_m"]].to_numpy()
+    mcp = next(c["geometry"] for c in extras["contours"] if (c["method"], c["level"]) == ("mcp", 100))
+    vertices = np.asarray(mcp.exterior.coords)
+    gap = np.min(np.hypot(vertices[:, None, 0] - masked[None, :, 0], vertices[:, None, 1] - masked[None, :, 1]), axis=1)
+    assert gap.max() < 0.05  # metres
+    assert np.allclose(extras["track_xy"].to_numpy(), masked)

@@ -70,8 +70,7 @@ def test_mcp100_on_real_antarctic_tracks_matches_the_geodesic_hull():
     import pandas as pd
     from pyproj import CRS
 
-    from roamstat.geo import animal_projection, project_lonlat, unproject_xy
-    from roamstat.ranges.mask import spherical_centroid
+    from roamstat.geo import animal_projection, centroid_of, project_lonlat, unit_vector_sum, unproject_xy
 
     path = Path(__file__).parents[2] / "shared" / "realdata" / "antarctic_tracks_dwc.csv"
     if not path.exists():
@@ -88,7 +87,7 @@ def test_mcp100_on_real_antarctic_tracks_matches_the_geodesic_hull():
                               "x_m": x, "y_m": y, "segment": 0, "interpolated": False})
         fixes["time"] = pd.to_datetime(fixes["time"], utc=True)
         rows, _, _ = ranges_animal(fixes, Config())
-        lat_c, lon_c = spherical_centroid(lat, lon)
+        lat_c, lon_c = centroid_of(unit_vector_sum(lat, lon))
         gnomonic = CRS.from_proj4(f"+proj=gnom +lat_0={lat_c} +lon_0={lon_c} +datum=WGS84 +units=m +no_defs")
         hull = MultiPoint(np.column_stack(project_lonlat(lon, lat, gnomonic))).convex_hull
         hull_lon, hull_lat = unproject_xy(*np.asarray(hull.exterior.coords).T, gnomonic)

@@ -16,6 +16,7 @@ Paper 1395.
 
 from __future__ import annotations
 
+import math
 import re
 from functools import lru_cache
 
@@ -167,3 +168,17 @@ def is_metric_projected(crs) -> bool:
     if not crs.is_projected:
         return False
     return all(axis.unit_name in ("metre", "meter") for axis in crs.axis_info[:2])
+
+
+def unit_vector_sum(lat, lon) -> np.ndarray:
+    """Sum of the unit vectors of the finite positions (adds up across chunks of a file)."""
+    la, lo = np.deg2rad(np.asarray(lat, float)), np.deg2rad(np.asarray(lon, float))
+    good = np.isfinite(la) & np.isfinite(lo) & (np.abs(la) <= np.pi / 2) & (np.abs(lo) <= np.pi)
+    la, lo = la[good], lo[good]
+    return np.array([np.sum(np.cos(la) * np.cos(lo)), np.sum(np.cos(la) * np.sin(lo)), np.sum(np.sin(la))])
+
+
+def centroid_of(vector_sum) -> tuple[float, float]:
+    """Latitude and longitude of a sum of unit vectors (right across the antimeridian)."""
+    v = np.asarray(vector_sum, float)
+    return math.degrees(math.atan2(v[2], math.hypot(v[0], v[1]))), math.degrees(math.atan2(v[1], v[0]))

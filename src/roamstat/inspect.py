@@ -9,14 +9,15 @@ from roamstat.io.times import unused_zone_note
 
 def inspect_text(paths, cfg: Config) -> str:
     """The detected mapping, animals and schedule, plus the screening and projection outcome."""
-    from roamstat.run import load, n_kept
+    from roamstat.pipeline import load
+    from roamstat.rows import n_observed
 
     loaded = load(paths, cfg)
     lines = [describe_inputs(loaded.read)]
     if note := unused_zone_note(cfg.tz, loaded.read.tz_note):
         lines.append(note)
     lines += ["", "After screening and projection:"]
-    lines.append(f"  rows read {loaded.read.n_read}, kept {n_kept(loaded.fixes)}, rejected {len(loaded.rejected)}")
+    lines.append(f"  rows read {loaded.read.n_read}, kept {n_observed(loaded.fixes)}, rejected {len(loaded.rejected)}")
     if len(loaded.rejected):
         for code, count in loaded.rejected["reason_code"].value_counts().sort_index().items():
             lines.append(f"    {code}: {count}")

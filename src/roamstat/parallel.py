@@ -1,7 +1,7 @@
 """One small interface over serial, local process pool and Dask execution.
 
-:func:`map_animals` applies a top-level function to per-animal tasks and
-returns the results in task order, whichever backend ran them and in
+:class:`AnimalExecutor` (one per run) applies a top-level function to
+per-animal tasks and returns the results in task order, whichever backend ran them and in
 whatever order they finished, so outputs are identical across backends.
 Progress is reported as animals finish.
 """
@@ -30,6 +30,80 @@ def resolve_workers(value: str | int) -> int:
     return workers
 
 
+class AnimalExecutor:
+    """The run's one executor: serial, a local process pool or a Dask client.
+
+    The pool or client opens at the first :meth:`map` that needs it and is
+    reused by every later call (a streamed run maps once per batch of
+    animals); leaving the ``with`` block closes it.
+
+    Parameters
+    ----------
+    workers : int
+        Local worker processes (1: run in this process).
+    scheduler : str or None
+        Address of a Dask scheduler; when given, work goes there instead.
+    quiet : bool
+        No progress bar.
+    """
+
+    def __init__(self, workers: int = 1, scheduler: str | None = None, quiet: bool = False) -> None:
+        self.workers, self.scheduler, self.quiet = workers, scheduler, quiet
+        self._pool: ProcessPoolExecutor | None = None
+        self._client = None
+
+    def __enter__(self) -> AnimalExecutor:
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    def close(self) -> None:
+        """Shut the pool or client down (idempotent)."""
+        if self._pool is not None:
+            self._pool.shutdown()
+            self._pool = None
+        if self._client is not None:
+            self._client.close()
+            self._client = None
+
+    def map(self, func: Callable, tasks: Sequence, desc: str = "animals") -> list:
+        """``[func(t) for t in tasks]`` on this executor's backend, results in task order."""
+        # disable=None: tqdm shows the bar only on a terminal, so logs stay clean.
+        bar = tqdm(total=len(tasks), desc=desc, unit="animal", disable=True if self.quiet or not tasks else None,
+                   leave=False, dynamic_ncols=True)
+        try:
+            if self.scheduler:
+                return _run_dask(func, tasks, self._dask_client(), bar)
+            if self.workers <= 1 or len(tasks) <= 1:
+                results = []
+                for task in tasks:
+                    results.append(func(task))
+                    bar.update(1)
+                return results
+            if self._pool is None:
+                self._pool = ProcessPoolExecutor(max_workers=self.workers)
+            return _run_pool(func, tasks, self.workers, self._pool, bar)
+        finally:
+            bar.close()
+
+    def _dask_client(self):
+        if self._client is None:
+            try:
+                from dask.distributed import Client
+            except ImportError:
+                raise RoamstatError(
+                    "--scheduler needs Dask: install the cluster extra with "
+                    "pip install 'roamstat[cluster]', or drop --scheduler to run on this machine"
+                ) from None
+            try:
+                self._client = Client(self.scheduler, timeout="20s")
+            except (OSError, TimeoutError) as exc:
+                raise RoamstatError(f"--scheduler {self.scheduler}: cannot reach the Dask scheduler ({exc}); "
+                                    "check the address") from None
+        return self._client
+
+
 def map_animals(
     func: Callable,
     tasks: Sequence,
@@ -39,35 +113,21 @@ def map_animals(
     quiet: bool = False,
     desc: str = "animals",
 ) -> list:
-    """``[func(t) for t in tasks]`` on the chosen backend, results in task order."""
-    # disable=None: tqdm shows the bar only on a terminal, so logs stay clean.
-    bar = tqdm(total=len(tasks), desc=desc, unit="animal", disable=True if quiet or not tasks else None,
-               leave=False, dynamic_ncols=True)
-    try:
-        if scheduler:
-            return _run_dask(func, tasks, scheduler, bar)
-        if workers <= 1 or len(tasks) <= 1:
-            results = []
-            for task in tasks:
-                results.append(func(task))
-                bar.update(1)
-            return results
-        return _run_pool(func, tasks, workers, bar)
-    finally:
-        bar.close()
+    """``[func(t) for t in tasks]`` on a backend opened for this call only, results in task order."""
+    with AnimalExecutor(workers, scheduler, quiet) as executor:
+        return executor.map(func, tasks, desc)
 
 
-def _run_pool(func, tasks, workers, bar) -> list:
+def _run_pool(func, tasks, workers, pool, bar) -> list:
     # Several animals per submission: fewer round trips between processes, same order of results.
     size = max(1, min(16, len(tasks) // (workers * 8)))
     batches = [list(range(i, min(i + size, len(tasks)))) for i in range(0, len(tasks), size)]
     results: list = [None] * len(tasks)
-    with ProcessPoolExecutor(max_workers=min(workers, len(batches))) as pool:
-        futures = {pool.submit(_run_batch, func, [tasks[i] for i in batch]): batch for batch in batches}
-        for future in as_completed(futures):
-            for i, result in zip(futures[future], future.result()):
-                results[i] = result
-            bar.update(len(futures[future]))
+    futures = {pool.submit(_run_batch, func, [tasks[i] for i in batch]): batch for batch in batches}
+    for future in as_completed(futures):
+        for i, result in zip(futures[future], future.result()):
+            results[i] = result
+        bar.update(len(futures[future]))
     return results
 
 
@@ -75,25 +135,13 @@ def _run_batch(func, tasks) -> list:
     return [func(task) for task in tasks]
 
 
-def _run_dask(func, tasks, scheduler, bar) -> list:
-    try:
-        from dask.distributed import Client, as_completed as dask_completed
-    except ImportError:
-        raise RoamstatError(
-            "--scheduler needs Dask: install the cluster extra with "
-            "pip install 'roamstat[cluster]', or drop --scheduler to run on this machine"
-        ) from None
-    try:
-        client = Client(scheduler, timeout="20s")
-    except (OSError, TimeoutError) as exc:
-        raise RoamstatError(f"--scheduler {scheduler}: cannot reach the Dask scheduler ({exc}); check the address") from None
-    try:
-        futures = client.map(func, list(tasks), pure=False)
-        index = {f.key: i for i, f in enumerate(futures)}
-        results: list = [None] * len(tasks)
-        for future in dask_completed(futures):
-            results[index[future.key]] = future.result()
-            bar.update(1)
-        return results
-    finally:
-        client.close()
+def _run_dask(func, tasks, client, bar) -> list:
+    from dask.distributed import as_completed as dask_completed
+
+    futures = client.map(func, list(tasks), pure=False)
+    index = {f.key: i for i, f in enumerate(futures)}
+    results: list = [None] * len(tasks)
+    for future in dask_completed(futures):
+        results[index[future.key]] = future.result()
+        bar.update(1)
+    return results

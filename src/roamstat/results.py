@@ -3,8 +3,12 @@
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import pandas as pd
+
+if TYPE_CHECKING:  # the models package is heavy; results only names its type
+    from roamstat.models.fit import AnimalFits
 
 
 @dataclass
@@ -14,16 +18,17 @@ class AnimalResult:
     Tables hold rows for this animal only, with an ``animal_id`` column.
     ``null_curves`` maps a null-model name to the curve dict returned by
     ``compare.test_animal``; ``residency_curve`` and ``range_extras`` come from
-    ``ranges``.  Any part may be empty when a stage had too little data.
+    ``ranges``.  Any part may be empty when a stage had too little data or
+    did not run; ``fitted`` is None when the fit stage did not run.
     """
 
     animal_id: str
-    fits: pd.DataFrame
-    null_tests: pd.DataFrame
-    residency: dict
-    ranges: pd.DataFrame
-    features: list = field(default_factory=list)
-    fitted: object = None  # models.AnimalFits, for the report's density overlays
-    null_curves: dict = field(default_factory=dict)
+    fits: pd.DataFrame = field(default_factory=pd.DataFrame)
+    null_tests: pd.DataFrame = field(default_factory=pd.DataFrame)
+    residency: dict = field(default_factory=dict)
+    ranges: pd.DataFrame = field(default_factory=pd.DataFrame)
+    features: list[dict] = field(default_factory=list)
+    fitted: AnimalFits | None = None  # for the report's density overlays
+    null_curves: dict[str, dict] = field(default_factory=dict)
     residency_curve: dict = field(default_factory=dict)
     range_extras: dict = field(default_factory=dict)

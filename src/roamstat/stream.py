@@ -7,6 +7,8 @@ animals at a time, appending to fixes.csv and steps.csv as it goes.  Peak
 memory then grows with the largest animal (times the batch size), not with
 the file.  The tables are byte-identical to those of an ordinary run: every
 per-animal stage sees exactly the rows it would see in a whole-file run.
+The run's one executor and one hidden origin (masking) serve every batch.
+:mod:`roamstat.run` orders the run; this module does not import it.
 """
 
 from __future__ import annotations
@@ -14,51 +16,56 @@ from __future__ import annotations
 import hashlib
 import shutil
 import tempfile
-import time
 from pathlib import Path
+from typing import TYPE_CHECKING
 
+import numpy as np
 import pandas as pd
 
+from roamstat import rows
 from roamstat.config import Config
 from roamstat.errors import NothingKept, RoamstatError
+from roamstat.geo import unit_vector_sum
 from roamstat.io.chunks import read_in_chunks
 from roamstat.io.read import REJECTED_BASE, ReadResult
-from roamstat.io.write import StreamingCsv, write_json
-from roamstat.run import (MANIFEST, COMMAND_STAGES, Loaded, RunResult, StageClock, concat_tables,
-                          analyse_animals, build_manifest, combine_rejected,
-                          deployment_tables, fixes_for_output, n_kept, output_name, prepare_out_dir,
-                          rejected_for_output, report_tables, run_info, write_named)
+from roamstat.io.write import StreamingCsv
+from roamstat.outputs import (fixes_for_output, masking_origin, output_name, rejected_for_output,
+                              write_named)
+from roamstat.parallel import AnimalExecutor
+from roamstat.pipeline import (PER_ANIMAL_STAGES, Loaded, RunResult, StageClock, analyse_animals,
+                               combine_rejected, concat_tables, deployment_tables)
 from roamstat.screen import screen
 from roamstat.track import compute_steps, prepare_fixes, summarise
+
+if TYPE_CHECKING:
+    from roamstat.ranges.mask import HiddenOrigin
 
 CHUNK_RECORDS = 200_000  # records read at a time
 BATCH_ANIMALS = 16  # animals screened and analysed together
 
 
-def run_streamed(command: str, paths, out_dir, cfg: Config, argv=None,
-                 chunk_records: int = CHUNK_RECORDS, batch_animals: int = BATCH_ANIMALS) -> RunResult:
-    """Like :func:`roamstat.run.run_command`, holding a batch of animals at a time."""
+def check_streamable(cfg: Config) -> None:
+    """``--low-memory`` writes CSV only."""
     if cfg.output_format != "csv":
         raise RoamstatError("--low-memory writes CSV tables; drop --format parquet or --low-memory")
-    stages = tuple(s for s in COMMAND_STAGES[command] if s != "report" or cfg.report)
-    out_dir = prepare_out_dir(Path(out_dir), paths, cfg.force)
-    clock, started = StageClock(), time.perf_counter()
+
+
+def streamed(paths, stages: tuple, out_dir: Path, cfg: Config, clock: StageClock, executor: AnimalExecutor,
+             origin: HiddenOrigin | None = None, chunk_records: int = CHUNK_RECORDS,
+             batch_animals: int = BATCH_ANIMALS) -> RunResult:
+    """Compute and write the tables holding a batch of animals at a time (see the module notes).
+
+    The run's hidden origin (masking) is drawn once, after reading, from the
+    positions of every row read, and used for every batch.
+    """
     scratch = Path(tempfile.mkdtemp(prefix=".spill-", dir=out_dir))
     try:
         with clock("read"):
             spill = _spill(paths, cfg, scratch, chunk_records)
-        result = _process(command, spill, stages, out_dir, cfg, clock, batch_animals)
+        run_origin = masking_origin(cfg, spill.position_sum, origin)
+        return _process(spill, stages, out_dir, cfg, clock, executor, run_origin, batch_animals)
     finally:
         shutil.rmtree(scratch, ignore_errors=True)
-    loaded, tables, animals = result
-    if "report" in stages:
-        from roamstat.report import write_report
-
-        with clock("report"):
-            write_report(out_dir, report_tables(loaded, tables, cfg), animals, run_info(loaded, cfg, argv), cfg)
-    write_json(build_manifest(command, loaded, cfg, argv, clock.stages, time.perf_counter() - started),
-               out_dir / MANIFEST)
-    return RunResult(loaded=loaded, tables=tables, animals=animals, out_dir=out_dir, stages=clock.stages)
 
 
 class _Spill:
@@ -73,10 +80,12 @@ class _Spill:
         self.n_read = 0
         self.input_crs = None
         self.tz_notes: set[str] = set()
+        self.position_sum = np.zeros(3)  # unit vectors of the positions read, for the hidden origin
 
-    def add(self, rows: pd.DataFrame) -> None:
-        self.columns += [c for c in rows.columns if c not in self.columns]
-        for aid, group in rows.groupby("animal_id", sort=False):
+    def add(self, chunk: pd.DataFrame) -> None:
+        self.columns += [c for c in chunk.columns if c not in self.columns]
+        self.position_sum += unit_vector_sum(chunk["lat"], chunk["lon"])
+        for aid, group in chunk.groupby("animal_id", sort=False):
             key = hashlib.sha256(str(aid).encode("utf-8", "surrogatepass")).hexdigest()[:24]
             part = self.folder / f"{key}-{len(self.parts.get(aid, []))}.pkl"
             group.to_pickle(part)
@@ -116,7 +125,8 @@ def _merge_info(total: dict | None, chunk: dict) -> dict:
     return total
 
 
-def _process(command, spill: _Spill, stages, out_dir: Path, cfg: Config, clock: StageClock, batch_animals: int):
+def _process(spill: _Spill, stages, out_dir: Path, cfg: Config, clock: StageClock, executor: AnimalExecutor,
+             origin: HiddenOrigin | None, batch_animals: int) -> RunResult:
     read = ReadResult(rows=pd.DataFrame(), rejected=concat_tables(spill.read_rejected, REJECTED_BASE), files=spill.files,
                       n_read=spill.n_read, input_crs=spill.input_crs, tz_note="; ".join(sorted(spill.tz_notes)))
     writers = {"fixes": StreamingCsv(out_dir / output_name("fixes", cfg))}
@@ -128,25 +138,24 @@ def _process(command, spill: _Spill, stages, out_dir: Path, cfg: Config, clock: 
         for first in range(0, len(ids), batch_animals):
             batch = ids[first:first + batch_animals]
             with clock("screen+project+steps"):
-                rows = spill.rows_of(batch)
-                fixes, rejected = screen(rows, cfg)
+                fixes, rejected = screen(spill.rows_of(batch), cfg)
                 screened.append(rejected)
                 if not len(fixes):
                     continue
                 fixes, frames = prepare_fixes(fixes, cfg, spill.input_crs)
                 projections.update(frames)
-                kept += n_kept(fixes)
+                kept += rows.n_observed(fixes)
                 part = Loaded(read=read, fixes=fixes, rejected=_rejected_of(batch, read.rejected, rejected),
-                              projections=frames)
-                writers["fixes"].append(fixes_for_output(fixes, cfg, read))
+                              projections=frames, origin=origin)
+                writers["fixes"].append(fixes_for_output(fixes, cfg, read, origin))
                 if "steps" in stages:
                     part.steps = compute_steps(fixes)
                     part.summary = summarise(fixes, part.steps, part.rejected)
                     writers["steps"].append(part.steps)
                     summaries.append(part.summary)
-            if any(s in stages for s in ("fit", "null", "ranges")):
+            if any(s in stages for s in PER_ANIMAL_STAGES):
                 with clock("analyse"):
-                    animals += analyse_animals(part, stages, cfg)
+                    animals += analyse_animals(part, stages, cfg, executor)
         if not kept:
             raise NothingKept(f"no fix passed screening ({read.n_read} rows rejected)",
                               combine_rejected(read.rejected, concat_tables(screened, REJECTED_BASE)))
@@ -162,13 +171,13 @@ def _process(command, spill: _Spill, stages, out_dir: Path, cfg: Config, clock: 
     rejected = combine_rejected(read.rejected, screen_rejected)
     # Track maps fall back to the ranges stage's own points: the fixes are on disk, not in memory.
     loaded = Loaded(read=read, fixes=pd.DataFrame(columns=["animal_id", "lat", "lon", "x_m", "y_m"]), rejected=rejected,
-                    projections=dict(sorted(projections.items())), kept=kept,
+                    projections=dict(sorted(projections.items())), kept=kept, origin=origin,
                     summary=concat_tables(summaries) if summaries else None)
     with clock("deployment"):
         tables = deployment_tables(animals, stages, cfg) if animals else {}
     with clock("write"):
         write_named(out_dir, {"rejected": rejected_for_output(rejected, cfg)}, loaded.summary, tables, cfg)
-    return loaded, tables, animals
+    return RunResult(loaded=loaded, tables=tables, animals=animals)
 
 
 def _rejected_of(animals, read_rejected: pd.DataFrame, screen_rejected: pd.DataFrame) -> pd.DataFrame:

@@ -38,6 +38,7 @@ import numpy as np
 import pandas as pd
 from pyproj.exceptions import CRSError
 
+from roamstat import rows
 from roamstat.errors import RoamstatError
 from roamstat.geo import (
     animal_projection,
@@ -392,15 +393,6 @@ def _ordered(fixes: pd.DataFrame) -> pd.DataFrame:
 # --------------------------------------------------------------------------- steps
 
 
-def _rows(fixes: pd.DataFrame, columns: list[str], flag: str, keep: bool = True) -> pd.DataFrame:
-    """The named columns of the rows whose ``flag`` column equals ``keep`` (all rows without it)."""
-    table = fixes[columns]
-    if flag not in fixes:
-        return table
-    mask = fixes[flag].to_numpy(bool) == keep
-    return table if mask.all() else table[mask]
-
-
 def compute_steps(fixes: pd.DataFrame) -> pd.DataFrame:
     """One row per consecutive pair of analysed fixes within a segment.
 
@@ -426,7 +418,7 @@ def compute_steps(fixes: pd.DataFrame) -> pd.DataFrame:
     ----------
     Karney, C. F. F. (2013). Algorithms for geodesics. J. Geodesy 87, 43-55.
     """
-    track = _rows(fixes, ["animal_id", "segment", "time", "lat", "lon"], "on_grid")
+    track = rows.analysed(fixes, ["animal_id", "segment", "time", "lat", "lon"])
     codes = pd.factorize(track["animal_id"], sort=True)[0]
     seg = track["segment"].to_numpy()
     pair = np.flatnonzero((codes[1:] == codes[:-1]) & (seg[1:] == seg[:-1]))
@@ -486,8 +478,8 @@ def summarise(fixes: pd.DataFrame, steps: pd.DataFrame, rejected: pd.DataFrame) 
     animal's path: straightness, sinuosity, or fractal dimension? Journal of
     Theoretical Biology 229, 209-220.
     """
-    observed = _rows(fixes, ["animal_id", "segment", "time"], "interpolated", keep=False)
-    track = _rows(fixes, ["animal_id", "segment", "lat", "lon"], "on_grid")
+    observed = rows.observed(fixes, ["animal_id", "segment", "time"])
+    track = rows.analysed(fixes, ["animal_id", "segment", "lat", "lon"])
     if len(observed) == 0:
         return pd.DataFrame({c: [] for c in SUMMARY_COLUMNS})
     obs_codes, obs_starts = _animal_blocks(observed["animal_id"].astype(str))

@@ -2,7 +2,7 @@
 
 Everything is computed in a Lambert azimuthal equal-area frame centred on the
 animal's first observed fix (:mod:`roamstat.ranges.frames`), so areas are
-areas on the ellipsoid.  Interpolated fixes are left out.
+areas on the ellipsoid.  Only observed fixes are used (:func:`roamstat.rows.located`).
 """
 
 from __future__ import annotations
@@ -13,12 +13,14 @@ from typing import Callable, NamedTuple
 import numpy as np
 import pandas as pd
 
+from roamstat.config import Config
 from roamstat.ranges import geojson
-from roamstat.ranges.frames import animal_frame, observed_fixes
+from roamstat.ranges.frames import animal_frame
 from roamstat.ranges.kde import density_grid, isopleth, reference_bandwidth
-from roamstat.ranges.mask import MASK_NOTE, MASKED_FRAME, hidden_origin, positive_metres
+from roamstat.ranges.mask import MASK_NOTE, MASKED_FRAME, HiddenOrigin, hidden_origin, positive_metres
 from roamstat.ranges.mcp import mcp_polygon
 from roamstat.ranges.schoener import autocorrelation_note, schoener_ratio
+from roamstat.rows import located
 
 MIN_FIXES = 10  # fewer fixes make no useful range (judgement, no source)
 CURVE_POINTS = 8  # sample sizes on the area curve
@@ -27,9 +29,9 @@ ROW_COLUMNS = ["method", "level", "area_km2", "n_fixes", "bandwidth_m", "schoene
                "area_gain_last_quarter_pct", "note", "masked"]
 
 
-def user_bandwidth(cfg) -> float | None:
+def user_bandwidth(cfg: Config) -> float | None:
     """``cfg.kde_bandwidth`` checked, or None for the reference bandwidth."""
-    return positive_metres(getattr(cfg, "kde_bandwidth", None), "--kde-bandwidth", "500")
+    return positive_metres(cfg.kde_bandwidth, "--kde-bandwidth", "500")
 
 
 def _mcp_shapes(x, y, h_user: float | None, levels) -> dict:
@@ -117,7 +119,7 @@ def _gain_pct(curve: pd.DataFrame, method: str, level: int, n: int) -> float:
     return 100.0 * (part[n] - part[quarter]) / part[quarter]
 
 
-def ranges_animal(fixes_a: pd.DataFrame, cfg=None, rng: np.random.Generator | None = None):
+def ranges_animal(fixes_a: pd.DataFrame, cfg: Config | None = None, origin: HiddenOrigin | None = None):
     """MCP (100 %, 95 %) and KDE (95 %, 50 %) ranges of one animal.
 
     Parameters
@@ -127,9 +129,9 @@ def ranges_animal(fixes_a: pd.DataFrame, cfg=None, rng: np.random.Generator | No
     cfg : roamstat.config.Config, optional
         Uses ``kde_bandwidth`` (metres; None for h_ref), ``mask_locations``
         and ``mask_grid``.
-    rng : numpy.random.Generator, optional
-        Only for the masking offset, and only in tests; see
-        :func:`roamstat.ranges.mask.hidden_origin`.
+    origin : HiddenOrigin, optional
+        The run's hidden origin when masking (one per run, shared with
+        every masked output).  Left out, one is drawn for this animal alone.
 
     Returns
     -------
@@ -151,9 +153,10 @@ def ranges_animal(fixes_a: pd.DataFrame, cfg=None, rng: np.random.Generator | No
     Mohr, C. O. (1947). Am. Midl. Nat. 37, 223-249.
     Swihart, R. K. & Slade, N. A. (1985). Ecology 66, 1176-1184.
     """
-    masked = bool(getattr(cfg, "mask_locations", False))
+    cfg = cfg or Config()
+    masked = cfg.mask_locations
     h_user = user_bandwidth(cfg)
-    obs = observed_fixes(fixes_a)
+    obs = located(fixes_a)
     animal_id = str(fixes_a["animal_id"].iloc[0]) if len(fixes_a) else ""
     n = len(obs)
     if n < MIN_FIXES:
@@ -168,9 +171,10 @@ def ranges_animal(fixes_a: pd.DataFrame, cfg=None, rng: np.random.Generator | No
     shapes = range_shapes(x, y, h_user)
     curve = area_curve(x, y, h_user)
     if masked:
-        origin = hidden_origin(x, y, getattr(cfg, "mask_grid", None), rng)
-        place, inverse, lon_centre = origin.geometry, MASKED_FRAME.inverse, 0.0
-        track_x, track_y = origin.xy(x, y)
+        if origin is None:
+            origin = hidden_origin(obs["lat"], obs["lon"], cfg.mask_grid)
+        place, inverse, lon_centre = (lambda g: origin.geometry(g, frame)), MASKED_FRAME.inverse, 0.0
+        track_x, track_y = origin.xy(obs["lon"], obs["lat"])
     else:
         place, inverse, lon_centre = (lambda g: g), frame.inverse, frame.lon0
         track_x, track_y = x, y

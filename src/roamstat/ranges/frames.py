@@ -1,4 +1,4 @@
-"""The equal-area frame the ranges are computed in, and the fixes they use.
+"""The equal-area frame the ranges are computed in.
 
 Areas are computed in a Lambert azimuthal equal-area frame (Snyder 1987,
 ch. 24) centred on the animal's first observed fix: every area in it is the
@@ -14,28 +14,9 @@ Paper 1395.
 
 from __future__ import annotations
 
-import numpy as np
 import pandas as pd
 
-from roamstat.errors import RoamstatError
 from roamstat.geo import equal_area_projection, project_lonlat, unproject_xy
-
-
-def observed_fixes(fixes_a: pd.DataFrame) -> pd.DataFrame:
-    """Observed (not interpolated) fixes with finite coordinates, in time order.
-
-    Interpolated fixes are left out of residency and range estimates: they are
-    not locations the collar reported.
-    """
-    missing = [c for c in ("animal_id", "time", "lat", "lon", "x_m", "y_m") if c not in fixes_a.columns]
-    if missing:
-        raise RoamstatError(f"fixes table lacks column(s) {', '.join(missing)}; prepare fixes with track.prepare_fixes first")
-    keep = np.isfinite(fixes_a["lat"].to_numpy(float)) & np.isfinite(fixes_a["lon"].to_numpy(float))
-    keep &= np.isfinite(fixes_a["x_m"].to_numpy(float)) & np.isfinite(fixes_a["y_m"].to_numpy(float))
-    keep &= fixes_a["time"].notna().to_numpy()
-    if "interpolated" in fixes_a.columns:
-        keep &= ~fixes_a["interpolated"].fillna(False).astype(bool).to_numpy()
-    return fixes_a[keep].sort_values("time", kind="stable").reset_index(drop=True)
 
 
 class EqualAreaFrame:

@@ -47,8 +47,8 @@ import pandas as pd
 from scipy.optimize import least_squares
 from scipy.special import expit
 
-from roamstat.ranges.frames import observed_fixes
 from roamstat.registry import UNBOUNDED_WALK_NULL
+from roamstat.rows import located
 
 MODELS = ("sedentary", "resident", "disperser", "migrant", "nomad")
 N_PARAMS = {"sedentary": 1, "resident": 2, "disperser": 3, "migrant": 5, "nomad": 1}
@@ -241,7 +241,7 @@ def residency_animal(fixes_a: pd.DataFrame, cfg=None):
     ----------
     Bunnefeld, N. et al. (2011). J. Anim. Ecol. 80, 466-476.
     """
-    obs = observed_fixes(fixes_a)
+    obs = located(fixes_a)
     row = {"pattern": "undetermined", "n_fixes": int(len(obs))}
     row.update({f"aic_{m}": math.nan for m in MODELS})
     row.update({"delta_aic": math.nan, "params": "{}", "note": ""})

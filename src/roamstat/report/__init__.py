@@ -208,7 +208,7 @@ def _animal_section(animal_id: str, name: str, result, tables: dict, written: li
     parts = [f'<section class="animal" id="a-{esc(name)}"><h3>Animal {esc(short_id(animal_id))}</h3>']
     if short_id(animal_id) != animal_id:
         parts.append(f"<details><summary>full id</summary><code>{esc(animal_id)}</code></details>")
-    notes = [getattr(result.fitted, "note", "") if result else ""]
+    notes = [result.fitted.note if result and result.fitted else ""]
     notes += [str(result.residency.get("note", ""))] if result and isinstance(result.residency, dict) else []
     notes += [str((result.range_extras or {}).get("note", ""))] if result else []
     for note in notes:

@@ -35,8 +35,13 @@ from __future__ import annotations
 
 import math
 
+from typing import TYPE_CHECKING
+
 import numpy as np
 import pandas as pd
+
+if TYPE_CHECKING:
+    from roamstat.models.fit import AnimalFits
 
 HEAVY_TAIL_RATIO = 50.0  # max/median step above which log axes read better (display choice, no source)
 
@@ -63,19 +68,21 @@ def _values(obj) -> np.ndarray:
 
 # --- step lengths and turning angles -----------------------------------------
 
-def step_data(fitted) -> dict | None:
+def step_data(fitted: AnimalFits | None) -> dict | None:
     """Observed steps, fitted densities and the axis choice for the step figure."""
-    steps = _values(getattr(fitted, "step_values", None))
+    if fitted is None:
+        return None
+    steps = _values(fitted.step_values)
     steps = steps[np.isfinite(steps) & (steps > 0)]
     if steps.size < 2:
         return None
-    heavy = bool(getattr(fitted, "tail_supported", False)) or steps.max() / np.median(steps) > HEAVY_TAIL_RATIO
+    heavy = fitted.tail_supported or steps.max() / np.median(steps) > HEAVY_TAIL_RATIO
     grid = np.geomspace(steps.min(), steps.max(), 200) if heavy else np.linspace(steps.max() / 400, steps.max(), 200)
     curves = []
-    best = getattr(fitted, "best_step", None)
+    best = fitted.best_step
     if best is not None:
         curves.append((f"{best.name} (best light-tailed)", grid, _density(best, grid)))
-    tail = getattr(fitted, "tail", None)
+    tail = fitted.tail
     if tail is not None:
         lower = _lower_bound(tail, steps)
         share = float(np.mean(steps >= lower))
@@ -97,14 +104,16 @@ def _lower_bound(model, steps) -> float:
     return float(inside.min()) if inside.size else float(steps.min())
 
 
-def turn_data(fitted) -> dict | None:
+def turn_data(fitted: AnimalFits | None) -> dict | None:
     """Observed turns and the fitted turn density for the rose."""
-    turns = _values(getattr(fitted, "turn_values", None))
+    if fitted is None:
+        return None
+    turns = _values(fitted.turn_values)
     turns = turns[np.isfinite(turns)]
     if turns.size < 2:
         return None
     theta = np.linspace(-math.pi, math.pi, 361)
-    best = getattr(fitted, "best_turn", None)
+    best = fitted.best_turn
     curves = [(f"{best.name} (best)", theta, _density(best, theta))] if best is not None else []
     return {"turns": turns, "curves": curves}
 

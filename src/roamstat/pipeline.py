@@ -1,0 +1,254 @@
+"""The pipeline: input files to screened fixes, per-animal results and deployment tables.
+
+Each step is a plain function of tables.  Which rows a stage sees is decided
+in :mod:`roamstat.rows`; where the tables go is :mod:`roamstat.outputs`;
+the order of a whole run is :mod:`roamstat.run`.
+"""
+
+from __future__ import annotations
+
+import importlib
+import time
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+import pandas as pd
+
+from roamstat import rows
+from roamstat.config import Config
+from roamstat.errors import NothingKept
+from roamstat.io.read import ReadResult, read_inputs
+from roamstat.parallel import AnimalExecutor
+from roamstat.results import AnimalResult
+from roamstat.screen import screen
+from roamstat.seeds import animal_rng
+from roamstat.track import compute_steps, prepare_fixes, summarise
+
+if TYPE_CHECKING:  # the ranges package loads only when a command needs it
+    from roamstat.ranges.mask import HiddenOrigin
+
+#: Which stages each command runs, in pipeline order.
+COMMAND_STAGES = {
+    "clean": (),
+    "steps": ("steps",),
+    "fit": ("steps", "fit"),
+    "nulltest": ("steps", "fit", "null"),
+    "ranges": ("steps", "ranges"),
+    "run": ("steps", "fit", "null", "ranges", "report"),
+}
+PER_ANIMAL_STAGES = ("fit", "null", "ranges")
+
+
+def command_stages(command: str, cfg: Config) -> tuple:
+    """The stages ``command`` runs (the report only when ``cfg.report``)."""
+    return tuple(s for s in COMMAND_STAGES[command] if s != "report" or cfg.report)
+
+
+class StageClock:
+    """Start time (UTC, ISO 8601) and duration of each stage, for the manifest."""
+
+    def __init__(self) -> None:
+        self.stages: list[dict] = []
+
+    def __call__(self, name: str):
+        clock = self
+
+        class _Stage:
+            def __enter__(self):
+                self.start = time.perf_counter()
+                self.started = datetime.now(timezone.utc).isoformat(timespec="seconds")
+
+            def __exit__(self, *exc):
+                clock.stages.append({"stage": name, "start": self.started,
+                                     "duration_s": round(time.perf_counter() - self.start, 3)})
+
+        return _Stage()
+
+
+@dataclass
+class Loaded:
+    """Screened, projected fixes with their steps and per-animal summary.
+
+    ``origin`` is the run's one hidden origin when locations are masked.
+    ``kept`` counts the input rows kept when ``fixes`` does not hold them all
+    (streamed runs).
+    """
+
+    read: ReadResult
+    fixes: pd.DataFrame
+    rejected: pd.DataFrame
+    projections: dict[str, str]
+    steps: pd.DataFrame | None = None
+    summary: pd.DataFrame | None = None
+    kept: int | None = None
+    origin: HiddenOrigin | None = None
+
+    def n_kept(self) -> int:
+        return rows.n_observed(self.fixes) if self.kept is None else self.kept
+
+
+@dataclass
+class RunResult:
+    """What a command computed (tables are also written to ``out_dir``)."""
+
+    loaded: Loaded
+    tables: dict = field(default_factory=dict)
+    animals: list[AnimalResult] = field(default_factory=list)
+    out_dir: Path | None = None
+    stages: list[dict] = field(default_factory=list)
+
+
+def load(paths, cfg: Config, clock: StageClock | None = None, with_steps: bool = True) -> Loaded:
+    """Read, screen and project the inputs; add steps and the summary."""
+    clock = clock or StageClock()
+    with clock("read"):
+        read = read_inputs(paths, cfg)
+    with clock("screen"):
+        fixes, rejected = screen(read.rows, cfg)
+        rejected = combine_rejected(read.rejected, rejected)
+    if len(fixes) == 0:
+        raise NothingKept(f"no fix in {_names(paths)} passed screening ({len(rejected)} rows rejected)", rejected)
+    with clock("project"):
+        fixes, projections = prepare_fixes(fixes, cfg, read.input_crs)
+    loaded = Loaded(read=read, fixes=fixes, rejected=rejected, projections=projections)
+    if with_steps:
+        with clock("steps"):
+            loaded.steps = compute_steps(fixes)
+            loaded.summary = summarise(fixes, loaded.steps, rejected)
+    return loaded
+
+
+def combine_rejected(read_rejected: pd.DataFrame, screen_rejected: pd.DataFrame) -> pd.DataFrame:
+    """Rows rejected while reading, then by the screen; line numbers stay whole numbers."""
+    rejected = pd.concat([read_rejected, screen_rejected], ignore_index=True) if len(read_rejected) \
+        else screen_rejected.reset_index(drop=True)
+    if len(rejected):
+        rejected["source_row"] = pd.to_numeric(rejected["source_row"]).astype("Int64")
+    return rejected
+
+
+def _names(paths) -> str:
+    names = [str(p) for p in paths]
+    return ", ".join(names[:3]) + (f" and {len(names) - 3} more" if len(names) > 3 else "")
+
+
+@dataclass(frozen=True)
+class AnimalTask:
+    """The picklable unit of per-animal work."""
+
+    animal_id: str
+    fixes: pd.DataFrame
+    steps: pd.DataFrame
+    nominal_dt_s: float
+    stages: tuple
+    cfg: Config
+    origin: HiddenOrigin | None = None
+
+
+def analyse_animal(task: AnimalTask) -> AnimalResult:
+    """Fit models, run null tests and estimate ranges for one animal (rows per :mod:`roamstat.rows`)."""
+    cfg, aid = task.cfg, task.animal_id
+    result = AnimalResult(animal_id=aid)
+    if "fit" in task.stages:
+        from roamstat import models
+
+        fitted = models.fit_animal(task.steps, cfg, animal_rng(cfg.seed, aid, "fit"))
+        result.fitted = fitted
+        result.fits = _with_id(fitted.rows, aid)
+        if "null" in task.stages:
+            from roamstat import compare
+
+            null_rows, curves = compare.test_animal(rows.analysed(task.fixes), task.steps, fitted, task.nominal_dt_s,
+                                                    cfg, animal_rng(cfg.seed, aid, "null"))
+            result.null_tests = _with_id(null_rows, aid)
+            result.null_curves = curves
+    if "ranges" in task.stages:
+        from roamstat import ranges
+
+        located = rows.located(task.fixes)
+        row, curve = ranges.residency_animal(located, cfg)
+        result.residency = {"animal_id": aid, **row}
+        result.residency_curve = curve
+        range_rows, features, extras = ranges.ranges_animal(located, cfg, task.origin)
+        result.ranges = _with_id(pd.DataFrame(range_rows), aid)
+        result.features = features
+        result.range_extras = extras
+    return result
+
+
+def _with_id(table: pd.DataFrame, animal_id: str) -> pd.DataFrame:
+    table = pd.DataFrame(table).reset_index(drop=True)
+    table.insert(0, "animal_id", animal_id)
+    return table
+
+
+def animal_tasks(loaded: Loaded, stages: tuple, cfg: Config) -> list[AnimalTask]:
+    """One task per animal, in sorted id order (the order of every output table)."""
+    nominal = loaded.summary.set_index("animal_id")["nominal_dt_s"]
+    steps_by = dict(tuple(loaded.steps.groupby("animal_id", sort=True)))
+    tasks = []
+    for aid, fixes_a in loaded.fixes.groupby("animal_id", sort=True):
+        steps_a = steps_by.get(aid, loaded.steps.iloc[0:0])
+        tasks.append(AnimalTask(str(aid), fixes_a.reset_index(drop=True), steps_a.reset_index(drop=True),
+                                float(nominal.get(aid, float("nan"))), stages, cfg, loaded.origin))
+    return tasks
+
+
+def analyse(loaded: Loaded, stages: tuple, cfg: Config, clock: StageClock | None = None,
+            executor: AnimalExecutor | None = None) -> tuple[dict, list[AnimalResult]]:
+    """Per-animal stages on ``executor`` (one opened for this call when None), then the deployment-level ones."""
+    per_animal = [s for s in stages if s in PER_ANIMAL_STAGES]
+    if not per_animal:
+        return {}, []
+    clock = clock or StageClock()
+    with clock("analyse:" + "+".join(per_animal)):
+        if executor is None:
+            with AnimalExecutor(cfg.workers, cfg.scheduler, cfg.quiet) as own:
+                animals = analyse_animals(loaded, stages, cfg, own)
+        else:
+            animals = analyse_animals(loaded, stages, cfg, executor)
+    with clock("deployment"):
+        tables = deployment_tables(animals, stages, cfg)
+    return tables, animals
+
+
+def analyse_animals(loaded: Loaded, stages: tuple, cfg: Config, executor: AnimalExecutor) -> list[AnimalResult]:
+    """The per-animal stages for every animal of ``loaded``, in sorted id order."""
+    _import_stage_modules(stages)
+    return executor.map(analyse_animal, animal_tasks(loaded, tuple(stages), cfg))
+
+
+def deployment_tables(animals: list[AnimalResult], stages: tuple, cfg: Config) -> dict:
+    """Tables across animals: fits, null tests with q-values and verdicts, residency, ranges."""
+    tables: dict = {}
+    if "fit" in stages:
+        tables["fits"] = concat_tables([a.fits for a in animals])
+    if "null" in stages:
+        from roamstat import compare
+
+        tables["null_tests"] = compare.finalise(concat_tables([a.null_tests for a in animals]), cfg)
+    if "ranges" in stages:
+        from roamstat import ranges
+
+        residency = pd.DataFrame([a.residency for a in animals])
+        tables["residency"] = ranges.finalise_residency(residency, tables.get("null_tests"))
+        tables["ranges"] = concat_tables([a.ranges for a in animals])
+        tables["ranges_geojson"] = ranges.feature_collection([f for a in animals for f in a.features])
+    return tables
+
+
+def _import_stage_modules(stages) -> None:
+    """Import the stage packages before workers start, so forked workers inherit them loaded."""
+    for stage, module in (("fit", "roamstat.models"), ("null", "roamstat.compare"), ("ranges", "roamstat.ranges")):
+        if stage in stages:
+            importlib.import_module(module)
+
+
+def concat_tables(frames: list[pd.DataFrame], empty_columns=()) -> pd.DataFrame:
+    """Non-empty frames stacked; else the first frame's (empty) layout, or the given columns without frames."""
+    filled = [f for f in frames if len(f)]
+    if filled:
+        return pd.concat(filled, ignore_index=True)
+    return frames[0].reset_index(drop=True) if frames else pd.DataFrame(columns=list(empty_columns))
