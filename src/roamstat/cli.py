@@ -41,6 +41,9 @@ def _input_options() -> argparse.ArgumentParser:
     g.add_argument("--y-col", help="northing column of projected input")
     g.add_argument("--crs", help="EPSG:NNNN of projected input, or the planar frame to use for every animal")
     g.add_argument("--tz", default="UTC", help="time zone of times without an offset (default UTC)")
+    g.add_argument("--time-format", metavar="PATTERN",
+                   help="strftime pattern of the times (e.g. '%%d.%%m.%%Y %%H:%%M'), or 'serial' for spreadsheet day numbers")
+    g.add_argument("--deployment-col", help="tag/collar column: each (animal, tag) is analysed as its own deployment")
     s = p.add_argument_group("screening")
     s.add_argument("--max-dop", type=float, help="reject fixes with DOP above this (needs a DOP column)")
     s.add_argument("--require-3d", action="store_true", help="reject 2-D fixes (needs a fix-type column)")
@@ -110,6 +113,7 @@ def config_from_args(args: argparse.Namespace) -> Config:
     values = dict(
         id_col=args.id_col, time_col=args.time_col, date_col=args.date_col, lat_col=args.lat_col,
         lon_col=args.lon_col, x_col=args.x_col, y_col=args.y_col, crs=args.crs, tz=args.tz,
+        time_format=args.time_format, deployment_col=args.deployment_col,
         max_dop=args.max_dop, require_3d=args.require_3d, max_speed=args.max_speed,
         spike_speed=args.spike_speed, min_quality=args.min_quality, disabled_rules=tuple(args.keep),
         max_gap=args.max_gap, resample=args.resample,

@@ -25,6 +25,8 @@ class Config:
     y_col: str | None = None
     crs: str | None = None  # input CRS for --x-col/--y-col, or the planar CRS to use
     tz: str = "UTC"  # time zone of naive timestamps
+    time_format: str | None = None  # strftime pattern of the times, or "serial"; None: detected
+    deployment_col: str | None = None  # device column splitting re-collared animals; None: detected
     # --- screening -----------------------------------------------------------
     max_dop: float | None = None  # None: rule off
     require_3d: bool = False

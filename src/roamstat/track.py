@@ -462,6 +462,9 @@ def compute_steps(fixes: pd.DataFrame) -> pd.DataFrame:
 def summarise(fixes: pd.DataFrame, steps: pd.DataFrame, rejected: pd.DataFrame) -> pd.DataFrame:
     """One row per animal: counts, schedule, path, displacement and tortuosity.
 
+    * ``tag``: only when the input had a deployment column (re-collared
+      animals): the device of this deployment, so the table says which
+      ``animal/tag`` rows are one animal's separate deployments.
     * ``n_fixes``: observed fixes kept (interpolated rows not counted);
       ``n_rejected``: rows of this animal in ``rejected``.
     * ``first_time, last_time, median_dt_s, nominal_dt_s, regularity``: from
@@ -496,6 +499,8 @@ def summarise(fixes: pd.DataFrame, steps: pd.DataFrame, rejected: pd.DataFrame) 
     schedules = pd.DataFrame([_schedule_from_ns(b) for b in np.split(obs_ns, obs_starts[1:])])
 
     out = pd.DataFrame({"animal_id": ids})
+    if "tag" in fixes.columns:
+        out["tag"] = out["animal_id"].map(fixes.groupby(fixes["animal_id"].astype(str))["tag"].first())
     out["n_fixes"] = np.bincount(obs_codes, minlength=ids.size)
     out["n_rejected"] = _count_by(rejected["animal_id"], ids) if "animal_id" in rejected else 0
     out["first_time"] = _from_ns(obs_ns[obs_starts])
