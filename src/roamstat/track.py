@@ -532,7 +532,7 @@ def summarise(fixes: pd.DataFrame, steps: pd.DataFrame, rejected: pd.DataFrame) 
     with np.errstate(divide="ignore", invalid="ignore"):
         out["straightness"] = np.where(denominator > 0, net / denominator, np.nan)
     out["sinuosity"] = _sinuosity(mean, mean_sq, mean_cos)
-    return out[SUMMARY_COLUMNS]
+    return out[SUMMARY_COLUMNS[:1] + (["tag"] if "tag" in out else []) + SUMMARY_COLUMNS[1:]]
 
 
 def _codes_in(animal_id: pd.Series, ids: np.ndarray) -> np.ndarray:
