@@ -69,7 +69,7 @@ def test_time_format_honours_tz_and_offsets():
     assert out.iloc[0] == pd.Timestamp("2025-04-13T10:00Z")  # Oslo keeps summer time (UTC+2) in April
     offset = pd.Series(["13.04.2025 12:00 +0100"])
     out, _, _ = parse_times(offset, "UTC", "f", "time", "%d.%m.%Y %H:%M %z")
-    assert out.iloc[0] == pd.Timestamp("2025-04-13T11:00Z") and "--time-format" in note
+    assert out.iloc[0] == pd.Timestamp("2025-04-13T11:00Z") and note.pattern == "%d.%m.%Y %H:%M"
 
 
 def test_wrong_time_format_names_the_option():
@@ -105,7 +105,7 @@ def test_many_rows_parse_with_one_detected_format():
     stamps = pd.date_range("2020-01-01", periods=20_000, freq="37min")  # spans days above 12
     text = pd.Series(stamps.strftime("%d.%m.%Y %H:%M:%S"), dtype="string")
     out, _, note = parse_times(text, "UTC", "f", "timestamp")
-    assert note.startswith("day-first") and (out.dt.tz_convert(None).to_numpy() == stamps.to_numpy()).all()
+    assert note.description.startswith("day-first") and (out.dt.tz_convert(None).to_numpy() == stamps.to_numpy()).all()
 
 
 # --- deployments ------------------------------------------------------------------------------------
@@ -202,3 +202,19 @@ def test_advice_on_quality_classes():
 def test_guard_neutralises_only_formulas(cell, written):
     text = csv_bytes(pd.DataFrame({"c": [cell]})).decode().splitlines()[1]
     assert text.strip('"') == written
+
+
+def test_chunked_read_keeps_deployments_and_date_order_of_the_whole_file(tmp_path):
+    # The first 10-record chunk holds only tag T1 and days above 12; the later ones only tag T2 on
+    # 01.07.2024, which alone could not settle the date order.
+    from roamstat.io.chunks import read_in_chunks
+
+    rows = ["animal,collar,timestamp,lat,lon"]
+    rows += [f"wolf,T1,13.03.2024 {h:02d}:00:00,{60 + 0.001 * h},10.0" for h in range(24)]
+    rows += [f"wolf,T2,01.07.2024 {h:02d}:00:00,{60.45 + 0.001 * (h % 2)},10.0" for h in range(24)]
+    path = tmp_path / "chunked.csv"
+    path.write_text("\n".join(rows) + "\n")
+    whole = read_inputs([path], Config()).rows
+    chunked = pd.concat([p.rows for p in read_in_chunks(str(path), Config(), 10)], ignore_index=True)
+    assert list(chunked["animal_id"]) == list(whole["animal_id"]) == ["wolf/T1"] * 24 + ["wolf/T2"] * 24
+    assert chunked["time"].equals(whole["time"]) and whole["time"].iloc[-1] == pd.Timestamp("2024-07-01T23:00Z")

@@ -21,7 +21,8 @@ column (combined), or date-only values.
 Deployment: when the animal id comes from an animal column and a separate
 device column (``tag``, ``collar``, ``device`` ...) gives one animal several
 values, each (animal, device) pair is a deployment of its own
-(``--deployment-col`` names the column when detection does not).
+(``--deployment-col`` names the column when detection does not; an empty
+name switches deployments off).
 
 References
 ----------
@@ -125,8 +126,12 @@ def detect(values: pd.DataFrame, cfg, path) -> Mapping:
     id_col = override("--id-col", getattr(cfg, "id_col", None)) or _pick_id(values, by_norm)
     if id_col:
         cols["animal_id"] = id_col
-        deployment = override("--deployment-col", getattr(cfg, "deployment_col", None)) or \
-            (_pick_deployment(values, by_norm, id_col) if norm(id_col) not in DEVICE else None)
+        wanted = getattr(cfg, "deployment_col", None)
+        if wanted == "":  # switched off (a chunked read whose first chunk found no deployments)
+            deployment = None
+        else:
+            deployment = override("--deployment-col", wanted) or \
+                (pick_deployment(values, by_norm, id_col) if norm(id_col) not in DEVICE else None)
         if deployment and deployment != id_col:
             cols["deployment"] = deployment
     elif getattr(cfg, "deployment_col", None):
@@ -244,7 +249,7 @@ def _pick_id(values: pd.DataFrame, by_norm: dict) -> str | None:
     return None
 
 
-def _pick_deployment(values: pd.DataFrame, by_norm: dict, id_col: str) -> str | None:
+def pick_deployment(values: pd.DataFrame, by_norm: dict, id_col: str) -> str | None:
     """A device column giving some animal more than one value (re-collared animals), else None."""
     for syn in DEVICE:
         name = by_norm.get(syn)

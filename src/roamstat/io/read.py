@@ -166,7 +166,8 @@ def _read_file(path: str, cfg) -> _FileRead:
         values, lines = values[~drop].reset_index(drop=True), lines[~drop]
     else:
         rejected = pd.DataFrame(columns=REJECTED_BASE)
-    rows, tz_note = _standardise(values, lines, mapping, path, p.stem, cfg, delimiter, info["notes"])
+    rows, tz_note, read_as = _standardise(values, lines, mapping, path, p.stem, cfg, delimiter, info["notes"])
+    info["time_format"] = read_as.pattern  # a chunked read keeps the first chunk's format
     return _FileRead(rows, rejected, info, tz_note)
 
 
@@ -223,13 +224,13 @@ def _standardise(values, lines, mapping: Mapping, path, stem, cfg, delimiter, no
         notes.append(f"date and time of day are separate columns: paired {mapping.date_col!r} with {cols['time']!r}")
     where = f"{path}, column {mapping.describe()['time']!r}"
     time_format = getattr(cfg, "time_format", None)
-    times, tz_note, format_note = parse_times(time_text, cfg.tz, where, mapping.date_col or cols.get("time", ""),
+    times, tz_note, read_as = parse_times(time_text, cfg.tz, where, mapping.date_col or cols.get("time", ""),
                                               time_format)
-    notes.append(f"times read as {format_note}")
+    notes.append(f"times read as {read_as.description}")
     if n and times.isna().all():
         example = time_text[time_text.str.strip() != ""].head(1).tolist()
         raise RoamstatError(
-            f"{where}: no value could be read as a time (e.g. {example[0]!r}) with {format_note}; give the "
+            f"{where}: no value could be read as a time (e.g. {example[0]!r}) with {read_as.description}; give the "
             "pattern with --time-format (e.g. '%d.%m.%Y %H:%M:%S') or name another column with --time-col"
             if example else f"{where}: the time column is empty; name the column holding the times with --time-col"
         )
@@ -253,7 +254,7 @@ def _standardise(values, lines, mapping: Mapping, path, stem, cfg, delimiter, no
     out["source_row"] = np.asarray(lines, dtype=np.int64)
     for c in values.columns:
         out[f"orig_{c}"] = values[c]
-    return pd.DataFrame(out, index=values.index, copy=False), tz_note
+    return pd.DataFrame(out, index=values.index, copy=False), tz_note, read_as
 
 
 def _deployments(ids: pd.Series, device: pd.Series, cols: dict, notes: list) -> pd.Series:

@@ -13,6 +13,8 @@ NaT, and the screen rejects their rows with reason ``bad_time``.
 
 from __future__ import annotations
 
+from typing import NamedTuple
+
 import numpy as np
 import pandas as pd
 
@@ -25,8 +27,15 @@ _EPOCH_S = (1e8, 4e9)
 _EPOCH_MS = (1e11, 4e12)
 
 
+class TimeFormat(NamedTuple):
+    """How a time column was read: words for ``inspect``, and the pattern (None for ISO 8601 and epoch)."""
+
+    description: str
+    pattern: str | None
+
+
 def parse_times(values: pd.Series, tz: str, where: str, column: str = "",
-                time_format: str | None = None) -> tuple[pd.Series, str, str]:
+                time_format: str | None = None) -> tuple[pd.Series, str, TimeFormat]:
     """Parse a column of time strings.
 
     Parameters
@@ -48,8 +57,8 @@ def parse_times(values: pd.Series, tz: str, where: str, column: str = "",
         Timezone-aware UTC times, NaT where a value could not be read.
     tz_note : str
         How times without an offset were placed in time.
-    format_note : str
-        Which format was read (printed by ``inspect``).
+    time_format : TimeFormat
+        Which format was read (printed by ``inspect``; the pattern lets a chunked read keep it).
     """
     text = values.astype("string").str.strip()
     present = text.notna() & (text != "")
@@ -57,15 +66,15 @@ def parse_times(values: pd.Series, tz: str, where: str, column: str = "",
     numbers = pd.to_numeric(text, errors="coerce") if numeric or time_format == SERIAL else None
     if time_format == SERIAL or (numeric and is_date_name(column) and looks_serial(numbers)):
         naive = from_serial_days(numbers, where)
-        return _localise(naive, tz), _naive_note(tz), "spreadsheet serial day numbers (1900 date system)"
+        return _localise(naive, tz), _naive_note(tz), TimeFormat("spreadsheet serial day numbers (1900 date system)", SERIAL)
     if numeric:
-        return _epoch(text, present, where), "Unix epoch", "Unix epoch"
+        return _epoch(text, present, where), "Unix epoch", TimeFormat("Unix epoch", None)
     if time_format is not None:
-        return _with_formats(text, present, [time_format], tz), _naive_note(tz), f"--time-format {time_format!r}"
+        return _with_formats(text, present, [time_format], tz), _naive_note(tz), TimeFormat(f"--time-format {time_format!r}", time_format)
     found = sheet_formats(text[present], where)
     if found is not None:
         described, formats = found
-        return _with_formats(text, present, formats, tz), _naive_note(tz), f"{described} ({formats[0]})"
+        return _with_formats(text, present, formats, tz), _naive_note(tz), TimeFormat(f"{described} ({formats[0]})", formats[0])
     out = pd.Series(pd.NaT, index=values.index, dtype="datetime64[ns, UTC]")
     naive_zone = str(tz).upper() not in ("UTC", "Z", "GMT", "ETC/UTC")
     has_offset = text.str.contains(_OFFSET, regex=True, na=False) if naive_zone else present
@@ -82,7 +91,7 @@ def parse_times(values: pd.Series, tz: str, where: str, column: str = "",
         note = "times without offset read as UTC" if naive_present else "offsets in the data"
     else:
         note = "offsets in the data" if not naive.any() else f"times without offset read as {tz}"
-    return out, note, "ISO 8601"
+    return out, note, TimeFormat("ISO 8601", None)
 
 
 def _naive_note(tz: str) -> str:
