@@ -218,3 +218,23 @@ def test_chunked_read_keeps_deployments_and_date_order_of_the_whole_file(tmp_pat
     chunked = pd.concat([p.rows for p in read_in_chunks(str(path), Config(), 10)], ignore_index=True)
     assert list(chunked["animal_id"]) == list(whole["animal_id"]) == ["wolf/T1"] * 24 + ["wolf/T2"] * 24
     assert chunked["time"].equals(whole["time"]) and whole["time"].iloc[-1] == pd.Timestamp("2024-07-01T23:00Z")
+
+
+def test_impossible_dates_are_unreadable_not_rolled_over():
+    # 31 February and 29 February 2025 do not exist; 2024 is a leap year (Gregorian calendar).
+    out, _, _ = parse_times(pd.Series(["31.02.2025 12:00", "29.02.2025 01:00", "29.02.2024 01:00"]), "UTC", "f", "t")
+    assert pd.isna(out.iloc[0]) and pd.isna(out.iloc[1]) and out.iloc[2] == pd.Timestamp("2024-02-29T01:00Z")
+
+
+@pytest.mark.parametrize("fmt", ["%d.%m.%Y %H:%M:%S", "%m/%d/%y %I:%M %p", "%Y-%m-%d %I:%M:%S %p"])
+def test_fast_pattern_reader_agrees_with_pandas(fmt):
+    from roamstat.io.sheetdates import parse_with_pattern
+
+    rng = np.random.default_rng(16)
+    seconds = rng.integers(0, 40 * 365 * 86400, 3000)
+    stamps = pd.Timestamp("1990-01-01") + pd.to_timedelta(seconds, unit="s").floor("min")
+    text = pd.Series(stamps.strftime(fmt), dtype="string")
+    text.iloc[::7] = text.iloc[::7].str.replace(r"^0", "", regex=True)  # unpadded leading fields
+    reference = pd.to_datetime(text, format=fmt, errors="coerce")  # pandas' own strptime as reference
+    got = parse_with_pattern(text, fmt)
+    assert got.notna().all() and (got.to_numpy() == reference.to_numpy()).all()

@@ -19,7 +19,7 @@ import numpy as np
 import pandas as pd
 
 from roamstat.errors import RoamstatError
-from roamstat.io.sheetdates import SERIAL, from_serial_days, is_date_name, looks_serial, sheet_formats
+from roamstat.io.sheetdates import SERIAL, from_serial_days, is_date_name, looks_serial, parse_with_pattern, sheet_formats
 
 _OFFSET = r"\d:\d{2}(?::\d{2}(?:[.,]\d+)?)?\s*(?:[Zz]|UTC|[+-]\d{2}(?::?\d{2})?)$"
 # Epoch seconds between 1973 and 2096, or milliseconds over the same span.
@@ -113,7 +113,7 @@ def _with_formats(text: pd.Series, present: pd.Series, formats: list[str], tz: s
     for fmt in formats:
         if not todo.any():
             break
-        parsed = pd.to_datetime(text[todo], format=fmt, errors="coerce", utc="%z" in fmt or "%Z" in fmt)
+        parsed = parse_with_pattern(text[todo], fmt)
         if parsed.dt.tz is None:
             parsed = _localise(parsed.astype("datetime64[ns]"), tz)
         parsed = parsed.astype("datetime64[ns, UTC]")
