@@ -55,6 +55,9 @@ _OPTIONS = (
         ("--crs", dict(help="EPSG:NNNN of projected input, or the planar frame to use for every animal")),
         ("--tz", dict(default="UTC", help="time zone of times without an offset, e.g. Europe/London "
                                           "(default UTC; times with an offset keep it)")),
+        ("--time-format", dict(metavar="PATTERN", help="strftime pattern of the times (e.g. '%%d.%%m.%%Y %%H:%%M'), "
+                                                       "or 'serial' for spreadsheet day numbers")),
+        ("--deployment-col", dict(help="tag/collar column: each (animal, tag) is analysed as its own deployment")),
     ), frozenset(COMMANDS)),
     ("screening", (
         ("--max-dop", dict(type=float, help="reject fixes with DOP above this (needs a DOP column)")),

@@ -37,6 +37,8 @@ class Config:
     y_col: str | None = None
     crs: str | None = None  # input CRS for --x-col/--y-col, or the planar CRS to use
     tz: str = "UTC"  # time zone of naive timestamps
+    time_format: str | None = None  # strftime pattern of the times, or "serial"; None: detected
+    deployment_col: str | None = None  # device column splitting re-collared animals; None: detected
     # --- screening -----------------------------------------------------------
     max_dop: float | None = None  # None: rule off
     require_3d: bool = False
@@ -88,6 +90,7 @@ def _plain(value):
 OPTIONS = {
     "id_col": "--id-col", "time_col": "--time-col", "date_col": "--date-col", "lat_col": "--lat-col",
     "lon_col": "--lon-col", "x_col": "--x-col", "y_col": "--y-col", "crs": "--crs", "tz": "--tz",
+    "time_format": "--time-format", "deployment_col": "--deployment-col",
     "max_dop": "--max-dop", "require_3d": "--require-3d", "max_speed": "--max-speed",
     "spike_speed": "--spike-speed", "min_quality": "--min-quality", "disabled_rules": "--keep",
     "max_gap": "--max-gap", "resample": "--resample", "min_step": "--min-step", "bootstrap": "--bootstrap",
@@ -217,7 +220,8 @@ def _scheduler(value, option: str) -> None:
 
 
 _CHECKS: dict[str, Callable] = {
-    **dict.fromkeys(("id_col", "time_col", "date_col", "lat_col", "lon_col", "x_col", "y_col", "crs"), _text),
+    **dict.fromkeys(("id_col", "time_col", "date_col", "lat_col", "lon_col", "x_col", "y_col", "crs",
+                      "time_format", "deployment_col"), _text),
     "tz": _zone,
     "max_dop": _positive("5"),
     "require_3d": _flag,

@@ -2,9 +2,18 @@
 
 from __future__ import annotations
 
+import pandas as pd
+
 from roamstat.config import Config
 from roamstat.io.read import describe_inputs
 from roamstat.io.times import unused_zone_note
+from roamstat.ranges.estimate import MIN_FIXES as MIN_RANGE_FIXES
+from roamstat.ranges.residency import MIN_FIXES as MIN_RESIDENCY_FIXES
+from roamstat.screen import QUALITY_ORDER
+
+# Below half of the intervals on the nominal schedule, step-based nulls need --resample or a
+# continuous-time null (judgement, no source).
+_IRREGULAR = 0.5
 
 
 def inspect_text(paths, cfg: Config) -> str:
@@ -29,7 +38,47 @@ def inspect_text(paths, cfg: Config) -> str:
             f"{int(row['n_segments'])} segment(s); "
         )
         lines.append(f"  {aid}: {schedule}frame {_short_crs(crs)}")
+    advice = advise(loaded.read.rows, loaded.summary, cfg)
+    if advice:
+        lines += ["", "Advice:"] + [f"  {line}" for line in advice]
     return "\n".join(lines)
+
+
+def advise(rows: pd.DataFrame, summary: pd.DataFrame, cfg: Config) -> list[str]:
+    """Suggestions for the run: quality classes, irregular schedules, animals with too few fixes.
+
+    Satellite location classes (3, 2, 1, 0, A, B, Z, best to worst) follow the
+    Argos convention; dropping B and Z, whose errors reach several km, is
+    common practice (no source) and a starting point, not a rule.
+    """
+    out = []
+    quality = rows["quality"].dropna().astype(str) if "quality" in rows else pd.Series([], dtype=str)
+    if len(quality):
+        counts = quality.value_counts()
+        ordered = [q for q in reversed(QUALITY_ORDER) if q in counts.index] + \
+            sorted(q for q in counts.index if q not in QUALITY_ORDER)
+        out.append("fixes per quality class: " + ", ".join(f"{q} {int(counts[q])}" for q in ordered))
+        poor = [q for q in ("B", "Z") if q in counts.index]
+        if poor and cfg.min_quality is None:
+            kept = int(counts[[q for q in counts.index if q not in ("B", "Z")]].sum())
+            out.append(f"suggested: --min-quality A drops classes {' and '.join(poor)} (errors of several km); "
+                       f"it keeps {kept} of {int(counts.sum())} fixes")
+    irregular = summary[summary["regularity"] < _IRREGULAR] if "regularity" in summary else summary.iloc[:0]
+    if len(quality) or len(irregular):
+        which = f"{len(irregular)} of {len(summary)} animals have under {_IRREGULAR:.0%} of intervals on " \
+                "schedule; " if len(irregular) else ""
+        out.append(f"{which}the crw, shuffle and levy nulls assume regular, accurately located steps: for "
+                   "irregular, error-prone fixes use the continuous-time null (--null ctcrw), or --resample "
+                   "onto a regular grid first")
+    few = summary[summary["n_fixes"] < max(MIN_RESIDENCY_FIXES, cfg.min_steps_test)] if "n_fixes" in summary \
+        else summary.iloc[:0]
+    for _, row in few.iterrows():
+        n = int(row["n_fixes"])
+        lacking = ["null-walk verdicts (insufficient)", "residency class"]
+        if n < MIN_RANGE_FIXES:
+            lacking.append("home ranges")
+        out.append(f"{row['animal_id']}: only {n} fixes kept; too few for {', '.join(lacking)}")
+    return out
 
 
 def _duration(seconds: float) -> str:

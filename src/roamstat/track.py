@@ -455,6 +455,9 @@ def compute_steps(fixes: pd.DataFrame) -> pd.DataFrame:
 def summarise(fixes: pd.DataFrame, steps: pd.DataFrame, rejected: pd.DataFrame) -> pd.DataFrame:
     """One row per animal: counts, schedule, path, displacement and tortuosity.
 
+    * ``tag``: only when the input had a deployment column (re-collared
+      animals): the device of this deployment, so the table says which
+      ``animal/tag`` rows are one animal's separate deployments.
     * ``n_fixes``: observed fixes kept (interpolated rows not counted);
       ``n_rejected``: rows of this animal in ``rejected``.
     * ``first_time, last_time, median_dt_s, nominal_dt_s, regularity``: from
@@ -489,6 +492,8 @@ def summarise(fixes: pd.DataFrame, steps: pd.DataFrame, rejected: pd.DataFrame) 
     schedules = pd.DataFrame([_schedule_from_ns(b) for b in np.split(obs_ns, obs_starts[1:])])
 
     out = pd.DataFrame({"animal_id": ids})
+    if "tag" in fixes.columns:
+        out["tag"] = out["animal_id"].map(fixes.groupby(fixes["animal_id"].astype(str))["tag"].first())
     out["n_fixes"] = np.bincount(obs_codes, minlength=ids.size)
     out["n_rejected"] = _count_by(rejected["animal_id"], ids) if "animal_id" in rejected else 0
     out["first_time"] = _from_ns(obs_ns[obs_starts])
@@ -520,7 +525,7 @@ def summarise(fixes: pd.DataFrame, steps: pd.DataFrame, rejected: pd.DataFrame) 
     with np.errstate(divide="ignore", invalid="ignore"):
         out["straightness"] = np.where(denominator > 0, net / denominator, np.nan)
     out["sinuosity"] = _sinuosity(mean, mean_sq, mean_cos)
-    return out[SUMMARY_COLUMNS]
+    return out[SUMMARY_COLUMNS[:1] + (["tag"] if "tag" in out else []) + SUMMARY_COLUMNS[1:]]
 
 
 def _codes_in(animal_id: pd.Series, ids: np.ndarray) -> np.ndarray:

@@ -50,10 +50,15 @@ def read_in_chunks(path: str, cfg: Config, chunk_records: int) -> Iterator[ReadR
             lines = body[first:first + chunk_records]
             chunk_file.write_bytes(header + data[starts[lines[0]]:ends[lines[-1]]])
             part = read_inputs([chunk_file], fixed)
+            if fixed is cfg:
+                fixed = _fix_mapping(cfg, part.files[0])
+                if fixed.deployment_col == "" and cfg.deployment_col is None:
+                    fixed = fixed.replace(deployment_col=_deployment_in_whole_file(data, header, part.files[0],
+                                                                                  chunk_records))
+                    if fixed.deployment_col:  # a re-collared animal outside the first chunk
+                        part = read_inputs([chunk_file], fixed)
             offset = int(lines[0]) - 1  # chunk line 2 is the original line lines[0] + 1
             yield _as_original(part, path, raw, offset)
-            if fixed is cfg:
-                fixed = _fix_mapping(cfg, part.files[0]["roles"])
 
 
 def _splittable(raw: bytes, path: Path):
@@ -69,12 +74,40 @@ def _splittable(raw: bytes, path: Path):
     return data, term
 
 
-def _fix_mapping(cfg: Config, roles: dict) -> Config:
-    """The first chunk's column choices, as overrides for the others (detection may look at values)."""
-    if cfg.x_col:
-        return cfg.replace(id_col=roles.get("animal_id"), time_col=roles.get("time"), date_col=roles.get("date"))
-    return cfg.replace(id_col=roles.get("animal_id"), time_col=roles.get("time"), date_col=roles.get("date"),
-                       lat_col=roles.get("lat"), lon_col=roles.get("lon"))
+def _fix_mapping(cfg: Config, info: dict) -> Config:
+    """The first chunk's column choices, deployment column and time pattern, as overrides for the others.
+
+    Detection looks at values, and a later chunk alone might decide otherwise (no day above 12 in it,
+    no re-collared animal in it).
+    """
+    roles = info["roles"]
+    fixed = cfg.replace(id_col=roles.get("animal_id"), time_col=roles.get("time"), date_col=roles.get("date"),
+                        deployment_col=roles.get("deployment", ""), time_format=info.get("time_format"))
+    return fixed if cfg.x_col else fixed.replace(lat_col=roles.get("lat"), lon_col=roles.get("lon"))
+
+
+def _deployment_in_whole_file(data: bytes, header: bytes, info: dict, chunk_records: int) -> str:
+    """The device column if any animal of the whole file carries several tags, else "" (none).
+
+    The first chunk may hold only one tag of a re-collared animal; the id and device columns of
+    every record are read in pieces, keeping distinct pairs only.
+    """
+    import io
+
+    import pandas as pd
+
+    from roamstat.io.columns import DEVICE, norm, pick_deployment
+
+    id_col, delimiter = info["roles"].get("animal_id"), info.get("delimiter")
+    names = header.decode("utf-8").strip().split(delimiter) if delimiter else []
+    devices = [n for n in names if norm(n) in DEVICE and n != id_col]
+    if id_col is None or not devices or norm(id_col) in DEVICE:
+        return ""
+    reader = pd.read_csv(io.BytesIO(data), sep=delimiter, usecols=[id_col, *devices], dtype=str,
+                         keep_default_na=False, chunksize=chunk_records, on_bad_lines="skip")
+    pairs = pd.concat([piece.drop_duplicates() for piece in reader], ignore_index=True).drop_duplicates()
+    pairs = pairs.apply(lambda c: c.str.strip())
+    return pick_deployment(pairs, {norm(n): n for n in pairs.columns}, id_col) or ""
 
 
 def _as_original(part: ReadResult, path: str, raw: bytes, offset: int) -> ReadResult:

@@ -18,6 +18,12 @@ row has its own value: such a column numbers records, not animals
 Time: one column with date and time, or a date column plus a time-of-day
 column (combined), or date-only values.
 
+Deployment: when the animal id comes from an animal column and a separate
+device column (``tag``, ``collar``, ``device`` ...) gives one animal several
+values, each (animal, device) pair is a deployment of its own
+(``--deployment-col`` names the column when detection does not; an empty
+name switches deployments off).
+
 References
 ----------
 Wieczorek, J. et al. (2012). Darwin Core: an evolving community-developed
@@ -39,15 +45,16 @@ def norm(name: str) -> str:
 
 
 ID_STRONG = ["animalid", "animal", "individualid", "individual", "organismid", "animalname", "indid", "individualname"]
+DEVICE = ["tagid", "tag", "collarid", "collar", "deviceid", "device", "tagserial", "collarserial", "serialnumber"]
 ID_WEAK = ["id", "eventid", "collarid", "collar", "tagid", "tag", "deviceid", "device", "occurrenceid"]
 TIME_FULL = ["timestamp", "datetime", "datetimeutc", "utcdatetime", "timestamputc", "dateandtime", "datetimegmt",
              "eventdate", "fixtime", "acquisitiontime", "time", "timeutc", "utctime", "gpstime", "date"]
 DATE_PART = ["date", "utcdate", "dateutc", "gpsdate", "fixdate", "eventdate"]
 TIME_OF_DAY = ["time", "utctime", "timeutc", "gpstime", "fixtime", "eventtime", "timeofday"]
 LAT = ["lat", "latitude", "decimallatitude", "latdeg", "latitudedeg", "latdd", "gpslatitude", "gpslat",
-       "locationlat", "latwgs84", "latitudewgs84"]
+       "latwgs84", "latitudewgs84"]
 LON = ["lon", "long", "lng", "longitude", "decimallongitude", "londeg", "longitudedeg", "londd", "gpslongitude",
-       "gpslon", "gpslong", "locationlong", "locationlon", "lonwgs84", "longitudewgs84"]
+       "gpslon", "gpslong", "lonwgs84", "longitudewgs84"]
 DOP = ["dop", "hdop", "pdop", "gdop", "gpsdop", "gpshdop", "gpspdop"]
 FIX_TYPE = ["fixtype", "fix", "gpsfixtype", "fixstatus", "fixmode", "fixdimension"]
 N_SATS = ["satellites", "nsats", "numsats", "sats", "satcount", "satellitecount", "nsat", "numsat",
@@ -56,8 +63,8 @@ QUALITY = ["quality", "locationquality", "locationclass", "lc", "locclass", "qua
 DYNAMIC = ["dynamicproperties"]  # Darwin Core: JSON text of extra measurements
 PROJECTED_HINT = ["x", "y", "easting", "northing", "utmx", "utmy", "utmeasting", "utmnorthing", "east", "north"]
 
-_TOD = re.compile(r"^\d{1,2}:\d{2}(:\d{2}(\.\d+)?)?\s*([Zz]|[+-]\d{2}(:?\d{2})?)?$")
-_DATE_ONLY = re.compile(r"^\d{4}-\d{1,2}-\d{1,2}$")
+_TOD = re.compile(r"^\d{1,2}:\d{2}(:\d{2}(\.\d+)?)?\s*([AaPp][Mm]|[Zz]|[+-]\d{2}(:?\d{2})?)?$")
+_DATE_ONLY = re.compile(r"^(\d{4}-\d{1,2}-\d{1,2}|\d{1,2}([/.\-])\d{1,2}\2(\d{4}|\d{2}))$")  # ISO or spreadsheet
 _NUMBER = re.compile(r"^[+-]?\d+(\.\d*)?$")
 
 
@@ -119,6 +126,17 @@ def detect(values: pd.DataFrame, cfg, path) -> Mapping:
     id_col = override("--id-col", getattr(cfg, "id_col", None)) or _pick_id(values, by_norm)
     if id_col:
         cols["animal_id"] = id_col
+        wanted = getattr(cfg, "deployment_col", None)
+        if wanted == "":  # switched off (a chunked read whose first chunk found no deployments)
+            deployment = None
+        else:
+            deployment = override("--deployment-col", wanted) or \
+                (pick_deployment(values, by_norm, id_col) if norm(id_col) not in DEVICE else None)
+        if deployment and deployment != id_col:
+            cols["deployment"] = deployment
+    elif getattr(cfg, "deployment_col", None):
+        raise RoamstatError(f"--deployment-col needs an animal-id column, and {path} has none detected; "
+                            "name it with --id-col")
 
     x_col, y_col = override("--x-col", getattr(cfg, "x_col", None)), override("--y-col", getattr(cfg, "y_col", None))
     if (x_col is None) != (y_col is None):
@@ -228,6 +246,19 @@ def _pick_id(values: pd.DataFrame, by_norm: dict) -> str | None:
         if len(column) >= 3 and column.nunique() == len(column):
             continue  # one value per row numbers records, not animals
         return name
+    return None
+
+
+def pick_deployment(values: pd.DataFrame, by_norm: dict, id_col: str) -> str | None:
+    """A device column giving some animal more than one value (re-collared animals), else None."""
+    for syn in DEVICE:
+        name = by_norm.get(syn)
+        if name is None or name == id_col:
+            continue
+        pairs = values[[id_col, name]].drop_duplicates()
+        pairs = pairs[pairs[name].str.strip() != ""]
+        if pairs[id_col].duplicated().any():
+            return name
     return None
 
 

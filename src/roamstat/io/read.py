@@ -9,6 +9,11 @@ then rejects with a reason).  ``n_read`` counts both, so
 
 Conventions
 -----------
+* Deployments: with an animal column and a device column (``tag``,
+  ``collar`` ...; ``--deployment-col``) that gives some animal several
+  values, ``animal_id`` becomes ``animal/device`` on every row whose device
+  differs from the animal id, so no track joins fixes across a tag change;
+  the device value is kept in the ``tag`` column.
 * A file without an animal-id column is one animal, named after the file
   (its name without the extension).  Rows whose id cell is empty get the same
   name, with a note in the file's ``notes``.
@@ -161,7 +166,8 @@ def _read_file(path: str, cfg) -> _FileRead:
         values, lines = values[~drop].reset_index(drop=True), lines[~drop]
     else:
         rejected = pd.DataFrame(columns=REJECTED_BASE)
-    rows, tz_note = _standardise(values, lines, mapping, path, p.stem, cfg, delimiter, info["notes"])
+    rows, tz_note, read_as = _standardise(values, lines, mapping, path, p.stem, cfg, delimiter, info["notes"])
+    info["time_format"] = read_as.pattern  # a chunked read keeps the first chunk's format
     return _FileRead(rows, rejected, info, tz_note)
 
 
@@ -209,6 +215,9 @@ def _standardise(values, lines, mapping: Mapping, path, stem, cfg, delimiter, no
         if empty.any():
             notes.append(f"{int(empty.sum())} rows without an animal id were given the file's name {stem!r}")
             ids = ids.where(~empty, stem)
+        if "deployment" in cols:
+            ids = _deployments(ids, values[cols["deployment"]], cols, notes)
+            out["tag"] = _by_unique(values[cols["deployment"]], lambda u: u.str.strip().replace("", None))
         out["animal_id"] = ids
     else:
         out["animal_id"] = pd.Series(stem, index=values.index, dtype=values.dtypes.iloc[0])
@@ -217,13 +226,18 @@ def _standardise(values, lines, mapping: Mapping, path, stem, cfg, delimiter, no
     if mapping.date_col:
         time_text = combine_date_time(values[mapping.date_col], time_text) if time_text is not None \
             else values[mapping.date_col]
+    if mapping.date_col and "time" in cols:
+        notes.append(f"date and time of day are separate columns: paired {mapping.date_col!r} with {cols['time']!r}")
     where = f"{path}, column {mapping.describe()['time']!r}"
-    times, tz_note = parse_times(time_text, cfg.tz, where)
+    time_format = getattr(cfg, "time_format", None)
+    times, tz_note, read_as = parse_times(time_text, cfg.tz, where, mapping.date_col or cols.get("time", ""),
+                                              time_format)
+    notes.append(f"times read as {read_as.description}")
     if n and times.isna().all():
         example = time_text[time_text.str.strip() != ""].head(1).tolist()
         raise RoamstatError(
-            f"{where}: no value could be read as a time (e.g. {example[0]!r}); roamstat reads ISO 8601 "
-            "(2024-05-01T06:00:00Z) or Unix epoch seconds; convert the column or name another with --time-col"
+            f"{where}: no value could be read as a time (e.g. {example[0]!r}) with {read_as.description}; give the "
+            "pattern with --time-format (e.g. '%d.%m.%Y %H:%M:%S') or name another column with --time-col"
             if example else f"{where}: the time column is empty; name the column holding the times with --time-col"
         )
     out["time"] = times.astype("datetime64[ns, UTC]").set_axis(values.index)
@@ -246,7 +260,26 @@ def _standardise(values, lines, mapping: Mapping, path, stem, cfg, delimiter, no
     out["source_row"] = np.asarray(lines, dtype=np.int64)
     for c in values.columns:
         out[f"orig_{c}"] = values[c]
-    return pd.DataFrame(out, index=values.index, copy=False), tz_note
+    return pd.DataFrame(out, index=values.index, copy=False), tz_note, read_as
+
+
+def _deployments(ids: pd.Series, device: pd.Series, cols: dict, notes: list) -> pd.Series:
+    """``animal/device`` ids wherever the device differs from the animal id; a note on re-collared animals."""
+    tags = _by_unique(device, lambda u: u.str.strip()).fillna("")
+    split = (tags != "") & (tags != ids)
+    out = ids.where(~split, ids.astype(object) + "/" + tags)
+    per_animal = pd.DataFrame({"a": ids, "t": tags})[split].drop_duplicates().groupby("a")["t"]
+    several = per_animal.nunique()
+    several = several[several > 1]
+    for animal in several.index[:20]:
+        listed = ", ".join(sorted(per_animal.get_group(animal).astype(str))[:5])
+        notes.append(f"animal {animal!r} carries {int(several[animal])} tags in {cols['deployment']!r} ({listed}): "
+                     f"each is analysed as its own deployment {animal}/<tag>")
+    if len(several) > 20:
+        notes.append(f"... and {len(several) - 20} more re-collared animals")
+    if not len(several):
+        notes.append(f"deployments from {cols['deployment']!r}: ids are animal/tag where the tag differs")
+    return out
 
 
 def _by_unique(values: pd.Series, transform) -> pd.Series:

@@ -6,14 +6,18 @@ never leaves half a table behind.
 
 Text cells that a spreadsheet would read as a formula (starting with ``=``,
 ``+``, ``-``, ``@``, a tab or a carriage return) are prefixed with a single
-quote, following the OWASP guidance on CSV injection.  Numeric columns are
-never touched, so negative numbers stay numbers.
+quote, following the OWASP guidance on CSV injection.  Only cells a
+spreadsheet would evaluate are changed: numeric columns are never touched,
+and a text cell that is a plain number (``-3.625001``, ``+12``, ``-1e-5``,
+or ``-3,625001`` as decimal-comma locales write it) is a value, not a
+formula, so it stays as it is.
 """
 
 from __future__ import annotations
 
 import json
 import os
+import re
 import tempfile
 from pathlib import Path
 
@@ -24,6 +28,7 @@ _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 _UMASK = os.umask(0o022)
 os.umask(_UMASK)
 _FORMULA_PATTERN = r"^[=+\-@\t\r]"
+_PLAIN_NUMBER = r"^[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?$"
 
 
 def atomic_write(path: str | os.PathLike, data: str | bytes) -> Path:
@@ -45,7 +50,7 @@ def atomic_write(path: str | os.PathLike, data: str | bytes) -> Path:
 
 def neutralise_text(value):
     """Prefix a text cell that would start a spreadsheet formula with a quote."""
-    if isinstance(value, str) and value.startswith(_FORMULA_START):
+    if isinstance(value, str) and value.startswith(_FORMULA_START) and not re.match(_PLAIN_NUMBER, value):
         return "'" + value
     return value
 
@@ -58,7 +63,7 @@ def spreadsheet_safe(table: pd.DataFrame) -> pd.DataFrame:
         if pd.api.types.is_numeric_dtype(column) or pd.api.types.is_datetime64_any_dtype(column):
             continue
         text = column.astype("string")
-        risky = text.str.match(_FORMULA_PATTERN, na=False).to_numpy(dtype=bool)
+        risky = (text.str.match(_FORMULA_PATTERN, na=False) & ~text.str.match(_PLAIN_NUMBER, na=False)).to_numpy(dtype=bool)
         if risky.any():
             column = column.astype(object)
             column[risky] = "'" + text[risky].astype(str)
