@@ -46,6 +46,11 @@ class Config:
     seed: int = 20261201
     alpha: float = 0.05
     min_steps_test: int = 20  # shorter tracks get verdict "insufficient"
+    # --- behavioural states (hidden Markov models) ------------------------------
+    state_counts: tuple[int, ...] = (1, 2, 3)  # numbers of states compared by BIC
+    state_starts: int = 10  # starting points per model
+    state_step_family: str = "gamma"  # or "weibull"
+    state_turn_family: str = "von_mises"  # or "wrapped_cauchy"
     # --- ranges --------------------------------------------------------------
     kde_bandwidth: float | None = None  # metres; None: reference bandwidth h_ref
     mask_locations: bool = False
