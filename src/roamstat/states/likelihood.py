@@ -22,7 +22,7 @@ import numpy as np
 
 from roamstat.states.chain import Chain
 from roamstat.states.families import TURN_FAMILIES, step_logpdf, turn_logpdf
-from roamstat.states.params import HmmParams, Layout, stationary
+from roamstat.states.params import HmmParams, Layout
 from roamstat.states.recursions import forward_loglik, posterior_counts
 
 #: Central-difference step for derivatives of log densities on the free scale.
@@ -99,7 +99,7 @@ class Observations:
         grad[3 * k:4 * k] = np.sum(wt * d_conc, axis=0)
         off = ~np.eye(k, dtype=bool)
         eta_grad = counts - p.gamma * counts.sum(axis=1, keepdims=True)
-        eta_grad += _stationary_slope(layout, theta, local[self.chain.restart].sum(axis=0) / delta)
+        eta_grad += _stationary_slope(p.gamma, delta, local[self.chain.restart].sum(axis=0) / delta)
         grad[4 * k:4 * k + k * (k - 1)] = eta_grad[off]
         if p.zero is not None:
             grad[4 * k + k * (k - 1):] = (np.sum(local[self.zeros], axis=0) * (1.0 - p.zero)
@@ -125,18 +125,13 @@ class Observations:
         return (lp[:, 0] - lp[:, 1]) / (2 * DIFF_STEP), (lp[:, 2] - lp[:, 3]) / (2 * DIFF_STEP)
 
 
-def _stationary_slope(layout: Layout, theta: np.ndarray, weight: np.ndarray) -> np.ndarray:
-    """sum_k weight_k d delta_k / d eta_ij (central differences; the chain starts in delta)."""
-    k = layout.n_states
-    out = np.zeros((k, k))
-    if k == 1:
-        return out
-    first = 4 * k
-    positions = np.argwhere(~np.eye(k, dtype=bool))
-    for n, (i, j) in enumerate(positions):
-        up, down = theta.copy(), theta.copy()
-        up[first + n] += DIFF_STEP
-        down[first + n] -= DIFF_STEP
-        slope = (stationary(layout.unpack(up).gamma) - stationary(layout.unpack(down).gamma)) / (2 * DIFF_STEP)
-        out[i, j] = weight @ slope
-    return out
+def _stationary_slope(gamma: np.ndarray, delta: np.ndarray, weight: np.ndarray) -> np.ndarray:
+    """sum_k weight_k d delta_k / d eta_ij for the multinomial-logit rows of gamma.
+
+    delta A = 1' with A = I - Gamma + U, so d delta = delta dGamma A^-1 and
+    sum_k w_k d delta_k / d gamma_il = delta_i (A^-1 w)_l; then through the
+    softmax, d gamma_il / d eta_ij = gamma_il (1[l = j] - gamma_ij).
+    """
+    k = gamma.shape[0]
+    slope_gamma = np.outer(delta, np.linalg.solve(np.eye(k) - gamma + 1.0, weight))
+    return gamma * (slope_gamma - np.sum(slope_gamma * gamma, axis=1, keepdims=True))

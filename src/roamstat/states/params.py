@@ -90,7 +90,8 @@ class Layout:
         mu, conc = theta[2 * k:3 * k], turn.from_free(theta[3 * k:4 * k])
         eta = np.zeros((k, k))
         eta[~np.eye(k, dtype=bool)] = theta[4 * k:4 * k + k * (k - 1)]
-        gamma = special.softmax(eta, axis=1)
+        gamma = np.exp(eta - eta.max(axis=1, keepdims=True))
+        gamma /= gamma.sum(axis=1, keepdims=True)
         zero = special.expit(theta[4 * k + k * (k - 1):]) if self.zero_mass else None
         return HmmParams(self.step_family, self.turn_family, shape, scale, zero, mu, conc, gamma)
 
