@@ -50,7 +50,7 @@ def decode(obs: Observations, p: HmmParams) -> Decoded:
     logp = step_lp + turn_lp
     restart = obs.chain.restart
     path = viterbi(logp, restart, p.delta, p.gamma)
-    alpha, prior, beta = forward_backward(logp, restart, p.delta, p.gamma)
+    _, alpha, prior, beta = forward_backward(logp, restart, p.delta, p.gamma)
     local = alpha * beta
     local /= local.sum(axis=1, keepdims=True)
     rest = prior * beta  # proportional to Pr(C_t = k | all but slot t)

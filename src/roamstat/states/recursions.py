@@ -67,10 +67,12 @@ def forward_loglik(logp, restart, delta, gamma):
 
 @numba.njit(cache=True)
 def forward_backward(logp, restart, delta, gamma):
-    """Normalised forward and backward vectors.
+    """Log-likelihood and normalised forward and backward vectors.
 
     Returns
     -------
+    loglik : float
+        As :func:`forward_loglik` (-inf if some slot has probability 0).
     alpha : ndarray (S, K)
         Pr(C_t = k | observations of the segment up to t).
     prior : ndarray (S, K)
@@ -83,10 +85,12 @@ def forward_backward(logp, restart, delta, gamma):
     prior = np.empty((n, k))
     beta = np.empty((n, k))
     dens = np.empty((n, k))
+    ll = 0.0
     for t in range(n):
         m = logp[t, 0]
         for j in range(1, k):
             m = max(m, logp[t, j])
+        ll += m
         for j in range(k):
             dens[t, j] = np.exp(logp[t, j] - m)
     for t in range(n):
@@ -101,6 +105,9 @@ def forward_backward(logp, restart, delta, gamma):
             prior[t, j] = p
             alpha[t, j] = p * dens[t, j]
             total += alpha[t, j]
+        if total <= 0.0 or not np.isfinite(total):
+            return -np.inf, alpha, prior, beta
+        ll += np.log(total)
         for j in range(k):
             alpha[t, j] /= total
     for t in range(n - 1, -1, -1):
@@ -117,7 +124,7 @@ def forward_backward(logp, restart, delta, gamma):
             total += b
         for i in range(k):
             beta[t, i] /= total
-    return alpha, prior, beta
+    return ll, alpha, prior, beta
 
 
 @numba.njit(cache=True)
@@ -168,12 +175,11 @@ def posterior_counts(logp, restart, delta, gamma):
         Expected numbers of i -> j transitions within segments.
     """
     n, k = logp.shape
-    ll = forward_loglik(logp, restart, delta, gamma)
     counts = np.zeros((k, k))
     local = np.empty((n, k))
+    ll, alpha, prior, beta = forward_backward(logp, restart, delta, gamma)
     if not np.isfinite(ll):
         return ll, local, counts
-    alpha, prior, beta = forward_backward(logp, restart, delta, gamma)
     xi = np.empty((k, k))
     for t in range(n):
         total = 0.0
