@@ -29,12 +29,14 @@ def markov_chain(gamma: np.ndarray, n: int, rng: np.random.Generator) -> np.ndar
     w, v = np.linalg.eig(gamma.T)
     delta = np.real(v[:, np.argmin(np.abs(w - 1.0))])
     delta /= delta.sum()
-    k = gamma.shape[0]
-    s = np.empty(n, dtype=int)
-    s[0] = rng.choice(k, p=delta)
+    # inversion: the next state is the first whose cumulative row probability exceeds a uniform
+    cum = np.cumsum(gamma, axis=1).tolist()
+    u = rng.random(n).tolist()
+    s = [int(np.searchsorted(np.cumsum(delta), u[0], side="right"))]
     for t in range(1, n):
-        s[t] = rng.choice(k, p=gamma[s[t - 1]])
-    return s
+        row = cum[s[-1]]
+        s.append(next((j for j, c in enumerate(row) if u[t] < c), len(row) - 1))
+    return np.array(s)
 
 
 def track(truth: dict, n_steps: int, rng: np.random.Generator, animal: str = "a"):
