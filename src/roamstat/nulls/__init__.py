@@ -15,13 +15,14 @@ from roamstat.nulls.crw import CrwNull
 from roamstat.nulls.levy import LevyNull
 from roamstat.nulls.observed import NO_SHORT_STEPS, ShortSteps, short_steps
 from roamstat.nulls.shuffle import ShuffleNull
+from roamstat.nulls.states import StatesNull
 from roamstat.nulls.walk import NullUnavailable, Walk, simulate_nsd
 
-NULLS = {"crw": CrwNull, "shuffle": ShuffleNull, "levy": LevyNull}
+NULLS = {"crw": CrwNull, "shuffle": ShuffleNull, "levy": LevyNull, "states": StatesNull}
 
 
 def build_null(name: str, fits, short: ShortSteps = NO_SHORT_STEPS) -> Walk:
-    """The null walk ``name`` ("crw", "shuffle" or "levy") for one animal.
+    """The null walk ``name`` ("crw", "shuffle", "levy" or "states") for one animal.
 
     Parameters
     ----------
@@ -45,4 +46,4 @@ def build_null(name: str, fits, short: ShortSteps = NO_SHORT_STEPS) -> Walk:
 
 
 __all__ = ["CrwNull", "LevyNull", "NULLS", "NO_SHORT_STEPS", "NullUnavailable", "ShortSteps", "ShuffleNull",
-           "Walk", "build_null", "expected_nsd", "expected_nsd_symmetric", "short_steps", "simulate_nsd"]
+           "StatesNull", "Walk", "build_null", "expected_nsd", "expected_nsd_symmetric", "short_steps", "simulate_nsd"]
