@@ -42,8 +42,15 @@ def markov_chain(gamma: np.ndarray, n: int, rng: np.random.Generator) -> np.ndar
 def track(truth: dict, n_steps: int, rng: np.random.Generator, animal: str = "a"):
     """Fixes of one animal: returns (times, x, y, states) with states[t] the state of step t."""
     states = markov_chain(truth["gamma"], n_steps, rng) if truth["gamma"].shape[0] > 1 else np.zeros(n_steps, int)
-    step = rng.gamma(truth["shape"][states], truth["scale"][states])
-    turn = rng.vonmises(truth["mu"][states], truth["kappa"][states])
+    if truth.get("step") == "weibull":
+        step = truth["scale"][states] * rng.weibull(truth["shape"][states])
+    else:
+        step = rng.gamma(truth["shape"][states], truth["scale"][states])
+    if truth.get("turn") == "wrapped_cauchy":
+        # a Cauchy angle of scale -ln(rho) wrapped onto the circle (Mardia & Jupp 2000, §3.5.7)
+        turn = truth["mu"][states] - np.log(truth["rho"][states]) * rng.standard_cauchy(states.size)
+    else:
+        turn = rng.vonmises(truth["mu"][states], truth["kappa"][states])
     heading = rng.uniform(-np.pi, np.pi) + np.cumsum(turn)
     x = np.concatenate([[0.0], np.cumsum(step * np.cos(heading))])
     y = np.concatenate([[0.0], np.cumsum(step * np.sin(heading))])

@@ -84,3 +84,19 @@ def test_missed_fixes_are_missing_observations_not_interpolated():
         assert result.best.n_obs < 0.75 * N_STEPS  # the two-hour steps were not used as one-hour ones
         assert len(result.decoded) == len(steps)  # every step row is decoded
         assert np.mean(result.decoded["state"].to_numpy() - 1 == truth_states) >= 0.85
+
+
+def test_weibull_steps_and_wrapped_cauchy_turns_recovered():
+    # the other offered families; same 15 % criterion on Weibull shape and scale and on rho
+    truth = {"step": "weibull", "turn": "wrapped_cauchy", "shape": np.array([1.2, 2.5]),
+             "scale": np.array([40.0, 400.0]), "mu": np.array([np.pi, 0.0]), "rho": np.array([0.3, 0.8]),
+             "gamma": TWO_STATES["gamma"]}
+    rng = np.random.default_rng(5)
+    steps, truth_states = observed_steps(truth, 2000, rng)
+    cfg = CFG.replace(state_counts=(2,), state_step_family="weibull", state_turn_family="wrapped_cauchy")
+    result = fit_animal_states(steps, cfg, rng)
+    p = result.best.params
+    np.testing.assert_allclose(p.shape, truth["shape"], rtol=0.15)
+    np.testing.assert_allclose(p.scale, truth["scale"], rtol=0.15)
+    np.testing.assert_allclose(p.conc, truth["rho"], rtol=0.15)
+    assert np.mean(result.decoded["state"].to_numpy() - 1 == truth_states) >= 0.9
