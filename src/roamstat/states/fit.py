@@ -30,7 +30,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import optimize
 
-from roamstat.states.families import TURN_FAMILIES, concentration, start_step, step_model
+from roamstat.states.families import concentration, start_step, step_model
 from roamstat.states.likelihood import Observations
 from roamstat.states.params import HmmParams, Layout
 
@@ -107,7 +107,7 @@ def fit_hmm(obs: Observations, n_states: int, step_family: str, turn_family: str
     n_states : int
         K >= 1.
     step_family, turn_family : str
-        Families shared by all states (``families.STEP_FAMILIES``, ``TURN_FAMILIES``).
+        Families shared by all states (``families.STEP_FAMILIES``, ``families.TURN_FAMILIES``).
     n_starts : int
         Starting points (the first is deterministic).
     rng : numpy.random.Generator
@@ -204,4 +204,4 @@ def _turn_start(obs: Observations, mean: np.ndarray, k: int) -> tuple[np.ndarray
     return mu, r
 
 
-__all__ = ["BEST_TOLERANCE", "HmmFit", "TURN_FAMILIES", "fit_hmm"]
+__all__ = ["BEST_TOLERANCE", "HmmFit", "fit_hmm"]
