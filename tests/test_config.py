@@ -35,7 +35,9 @@ def test_every_field_has_a_check():
 
 
 def test_default_nulls_are_the_registry_in_its_order():
-    assert Config().nulls == NULLS.names() == config.NULL_MODELS
+    assert Config().nulls == NULLS.defaults() == config.DEFAULT_NULLS
+    assert config.NULL_MODELS == NULLS.names()
+    assert set(NULLS.defaults()) < set(NULLS.names()), "an offered-only null (states) is not a default"
 
 
 @pytest.mark.parametrize("field, option", [

@@ -16,7 +16,7 @@ import warnings
 from collections import Counter
 
 from roamstat import __version__
-from roamstat.config import MIN_REPLICATES, NULL_MODELS, Config, check_config
+from roamstat.config import DEFAULT_NULLS, MIN_REPLICATES, Config, check_config
 from roamstat.errors import RoamstatError
 from roamstat.registry import NULLS
 
@@ -39,7 +39,7 @@ _PER_ANIMAL = _FITTING | _RANGING
 
 
 def _nulls_help() -> str:
-    return (f"null models, comma-separated (default {','.join(NULL_MODELS)}): {NULLS.help_lines()}")
+    return (f"null models, comma-separated (default {','.join(DEFAULT_NULLS)}): {NULLS.help_lines()}")
 
 
 #: (group, option, argparse keywords, commands that use it); groups appear in this order.
@@ -81,7 +81,7 @@ _OPTIONS = (
         ("--seed", dict(type=int, default=Config.seed, help=f"run seed (default {Config.seed})")),
     ), _FITTING),
     ("null tests", (
-        ("--null", dict(default=",".join(NULL_MODELS), help=_nulls_help())),
+        ("--null", dict(default=",".join(DEFAULT_NULLS), help=_nulls_help())),
         ("--replicates", dict(type=int, default=Config.replicates, metavar="M",
                               help=f"simulated walks per animal and null (default {Config.replicates}, "
                                    f"at least {MIN_REPLICATES})")),

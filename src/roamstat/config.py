@@ -19,7 +19,8 @@ from roamstat.errors import RoamstatError
 from roamstat.registry import NULLS
 
 #: Every registered null, in the order their generators are spawned (see ``compare.test_animal``).
-NULL_MODELS = NULLS.names()
+NULL_MODELS = NULLS.names()  # every null, in the order their generators are spawned
+DEFAULT_NULLS = NULLS.defaults()  # the nulls run when --null is not given
 #: Fewest simulated walks: with 19 the smallest Monte Carlo p-value, 1/(M + 1), reaches 0.05
 #: (Davison & Hinkley 1997, §4.2.5).
 MIN_REPLICATES = 19
@@ -55,11 +56,16 @@ class Config:
     min_step: float = 0.0  # metres; steps <= this are left out of step fits
     bootstrap: int = 0  # parametric-bootstrap replicates for parameter CIs
     # --- nulls ---------------------------------------------------------------
-    nulls: tuple[str, ...] = NULL_MODELS
+    nulls: tuple[str, ...] = DEFAULT_NULLS
     replicates: int = 999
     seed: int = 20261201
     alpha: float = 0.05
     min_steps_test: int = 20  # shorter tracks get verdict "insufficient"
+    # --- behavioural states (hidden Markov models) ------------------------------
+    state_counts: tuple[int, ...] = (1, 2, 3)  # numbers of states compared by BIC
+    state_starts: int = 10  # starting points per model
+    state_step_family: str = "gamma"  # or "weibull"
+    state_turn_family: str = "von_mises"  # or "wrapped_cauchy"
     # --- ranges --------------------------------------------------------------
     kde_bandwidth: float | None = None  # metres; None: reference bandwidth h_ref
     mask_locations: bool = False
@@ -91,6 +97,8 @@ OPTIONS = {
     "id_col": "--id-col", "time_col": "--time-col", "date_col": "--date-col", "lat_col": "--lat-col",
     "lon_col": "--lon-col", "x_col": "--x-col", "y_col": "--y-col", "crs": "--crs", "tz": "--tz",
     "time_format": "--time-format", "deployment_col": "--deployment-col",
+    "state_counts": "--states", "state_starts": "--state-starts", "state_step_family": "--state-steps",
+    "state_turn_family": "--state-turns",
     "max_dop": "--max-dop", "require_3d": "--require-3d", "max_speed": "--max-speed",
     "spike_speed": "--spike-speed", "min_quality": "--min-quality", "disabled_rules": "--keep",
     "max_gap": "--max-gap", "resample": "--resample", "min_step": "--min-step", "bootstrap": "--bootstrap",
@@ -214,6 +222,13 @@ def _choice(*allowed: str) -> Callable:
     return check
 
 
+def _state_counts(value, option: str) -> None:
+    if not value or len(set(value)) < len(value):
+        _fail(option, value, "give distinct numbers of states, e.g. 1,2,3")
+    for k in value:
+        _number(k, option, 1, True, 4, True, whole=True, hint="give numbers of states from 1 to 4, e.g. 1,2,3")
+
+
 def _scheduler(value, option: str) -> None:
     if value is not None and (not isinstance(value, str) or "://" not in value):
         _fail(option, value, "give the Dask scheduler's address, e.g. tcp://10.0.0.5:8786")
@@ -223,6 +238,10 @@ _CHECKS: dict[str, Callable] = {
     **dict.fromkeys(("id_col", "time_col", "date_col", "lat_col", "lon_col", "x_col", "y_col", "crs",
                       "time_format", "deployment_col"), _text),
     "tz": _zone,
+    "state_counts": _state_counts,
+    "state_starts": lambda v, o: _number(v, o, 1, True, whole=True, hint="give a whole number of starts >= 1, e.g. 10"),
+    "state_step_family": _choice("gamma", "weibull"),
+    "state_turn_family": _choice("von_mises", "wrapped_cauchy"),
     "max_dop": _positive("5"),
     "require_3d": _flag,
     "max_speed": _positive("3"),

@@ -48,6 +48,7 @@ class Entry:
     summary: str
     methods: str = ""
     target: str = ""
+    default: bool = True  # chosen when the user names none (nulls: offered-only ones set False)
 
     def load(self) -> Any:
         """The object named by ``target``."""
@@ -75,6 +76,10 @@ class Registry:
 
     def names(self) -> tuple[str, ...]:
         return tuple(self._entries)
+
+    def defaults(self) -> tuple[str, ...]:
+        """The entries used when the user names none, in registry order."""
+        return tuple(e.name for e in self if e.default)
 
     def __contains__(self, name: object) -> bool:
         return name in self._entries
@@ -114,6 +119,10 @@ NULLS = Registry("null model", "--null", (
           "a Lévy walk with the fitted power-law tail of step lengths and uniform turns "
           "(Viswanathan et al. 1999)",
           "roamstat.nulls.levy:LevyNull"),
+    Entry("states", "the fitted hidden Markov model of behavioural states (offered, not default)",
+          "a state-switching walk simulating the animal's fitted hidden Markov model of steps and turns "
+          "(Morales et al. 2004; Langrock et al. 2012)",
+          "roamstat.nulls.states:StatesNull", default=False),
 ))
 
 #: The null that stands for "an unbounded random walk with the animal's own steps and turns":

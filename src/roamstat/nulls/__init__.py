@@ -16,6 +16,7 @@ from roamstat.nulls.crw import CrwNull
 from roamstat.nulls.levy import LevyNull
 from roamstat.nulls.observed import NO_SHORT_STEPS, ShortSteps, short_steps
 from roamstat.nulls.shuffle import ShuffleNull
+from roamstat.nulls.states import StatesNull
 from roamstat.nulls.walk import NullUnavailable, Walk, simulate_nsd
 from roamstat.registry import NULLS
 
