@@ -275,8 +275,7 @@ def _tail_candidates(steps: np.ndarray, counts_note: str, rngs):
     xmin = power.xmin
     tail = np.sort(steps[steps >= xmin])
     where = f"tail x >= xmin {xmin:.6g} m: {tail.size} of {steps.size} steps"
-    distance = ks_statistic(tail, power.cdf)
-    gof_p = goodness_of_fit_p_value(steps, xmin, power.alpha, distance, rngs[0])
+    gof_p = goodness_of_fit_p_value(steps, xmin, power.alpha, rngs[0])
     out = [_Candidate("step", "tail", "power_law", tail, power, _join(where, counts_note), gof_p=gof_p)]
     truncated = _attempt("step", "tail", "truncated_power_law", tail, partial(fit_truncated_power_law, xmin=xmin),
                          _join(where, "vuong_p: bootstrap likelihood-ratio test against the power law", counts_note),

@@ -230,13 +230,16 @@ def scan_xmin(x_sorted: np.ndarray) -> float | None:
     return None if found is None else found[0]
 
 
-def scan_xmin_distance(x_sorted: np.ndarray) -> tuple[float, float] | None:
+def scan_xmin_distance(x_sorted: np.ndarray, max_candidates: int | None = None) -> tuple[float, float] | None:
     """:func:`scan_xmin` together with the smallest KS distance it found.
 
     Parameters
     ----------
     x_sorted : ndarray
         Positive values, sorted ascending.
+    max_candidates : int, optional
+        Scan at most this many candidates (evenly spaced by rank); default: the
+        module's bound, max(``MIN_CANDIDATES``, ``SCAN_CELLS`` / n).
 
     Returns
     -------
@@ -250,7 +253,7 @@ def scan_xmin_distance(x_sorted: np.ndarray) -> tuple[float, float] | None:
     first = first[keep]
     if first.size == 0:
         return None
-    cap = max(MIN_CANDIDATES, SCAN_CELLS // n)
+    cap = max(MIN_CANDIDATES, SCAN_CELLS // n) if max_candidates is None else max_candidates
     if first.size > cap:
         first = first[np.unique(np.linspace(0, first.size - 1, cap).round().astype(int))]
     suffix = np.concatenate([np.cumsum(lnx[::-1])[::-1], [0.0]])  # suffix[i] = sum_{j>=i} ln x_j
