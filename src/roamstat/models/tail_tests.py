@@ -26,9 +26,11 @@ the whole step set (each value, with probability n_tail / n, is drawn from the
 fitted power law, otherwise resampled from the steps below xmin), each refitted
 from scratch including the xmin scan.  p = (1 + #{D_b >= D}) / (1 + B).
 Small p (Clauset et al. use p <= 0.1) rules the power law out.  To bound the
-cost, D is the smallest KS distance over at most ``GOF_CANDIDATES`` xmin
-candidates evenly spaced by rank, for the data and every replicate alike (so
-like is compared with like); the reported xmin comes from the full scan.
+cost, D is the smallest KS distance over a grid of xmin candidates evenly
+spaced by rank, for the data and every replicate alike (so like is compared
+with like): ``GOF_CANDIDATES`` of them, fewer on long tracks so that
+candidates x n x replicates stays within ``GOF_CELLS`` (at least
+``GOF_MIN_CANDIDATES``).  The reported xmin comes from the full scan.
 
 References
 ----------
@@ -48,7 +50,9 @@ from roamstat.models.powerlaw_tail import ALPHA_BOUNDS, scan_xmin_distance
 
 LR_REPLICATES = 999  # cheap: one exponential sample per replicate, no numerical optimiser
 GOF_REPLICATES = 100  # each replicate rescans xmin; +-0.03 Monte Carlo error on p near 0.1
-GOF_CANDIDATES = 100  # xmin candidates per scan in the goodness-of-fit test (cost: candidates x n)
+GOF_CANDIDATES = 100  # most xmin candidates per scan in the goodness-of-fit test
+GOF_MIN_CANDIDATES = 10
+GOF_CELLS = 20_000_000  # candidates x n x replicates per animal: bounds the test's cost on long tracks
 _CHUNK_CELLS = 2_000_000  # replicate values drawn at once (memory bound ~16 MB)
 _BISECTIONS = 60
 
@@ -152,7 +156,8 @@ def goodness_of_fit_p_value(x: np.ndarray, xmin: float, exponent: float, rng: np
         p-value; NaN when no replicate could be refitted.
     """
     x = np.sort(np.asarray(x, dtype=float))
-    observed = scan_xmin_distance(x, GOF_CANDIDATES)
+    grid = int(np.clip(GOF_CELLS // max(1, replicates * x.size), GOF_MIN_CANDIDATES, GOF_CANDIDATES))
+    observed = scan_xmin_distance(x, grid)
     if observed is None:
         return math.nan
     body = x[x < xmin]
@@ -163,7 +168,7 @@ def goodness_of_fit_p_value(x: np.ndarray, xmin: float, exponent: float, rng: np
         n_tail = rng.binomial(n, share) if body.size else n
         draw = np.concatenate([xmin * (1.0 - rng.random(n_tail)) ** (-1.0 / (exponent - 1.0)),
                                rng.choice(body, n - n_tail) if n_tail < n else body[:0]])
-        found = scan_xmin_distance(np.sort(draw), GOF_CANDIDATES)
+        found = scan_xmin_distance(np.sort(draw), grid)
         if found is None:
             continue
         done += 1
