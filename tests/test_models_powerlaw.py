@@ -53,8 +53,13 @@ def test_against_the_powerlaw_package(seed):
         at_ours = powerlaw.Fit(x, xmin=ours.xmin, verbose=False)
     # the same estimator at the same xmin agrees to rounding
     assert ours.params["exponent"] == pytest.approx(at_ours.power_law.alpha, rel=1e-9)
-    # the KS scans agree closely; `powerlaw` compares the model CDF with the empirical CDF's left
-    # limit only, we take the two-sided supremum, so the chosen xmin may differ by a few data points
+    # the KS scans agree closely but need not pick the same xmin, for two reasons.  (1) The candidate
+    # sets differ: the reference gets the closed range [xs[0], xs[int(0.9 n)]], ours stops below
+    # xs[int(0.9 n)] and skips candidates leaving fewer than MIN_TAIL tail values.  (2) The distances
+    # differ by up to 1/m: ours is the exact sup |F_m - F| over both sides of every ECDF jump (Clauset
+    # et al. 2009, eq. 3.9); the reference (from memory, not re-checked) reads the ECDF as i/m at the
+    # i-th sorted value, its left limit, so it misses the jump up at each observation.  Neither is a
+    # difference of estimator: at the same xmin the exponents agree to rounding (checked above).
     assert ours.xmin == pytest.approx(ref.xmin, rel=0.05)
     assert ours.params["exponent"] == pytest.approx(ref.power_law.alpha, abs=0.05)
     # the generating tail is recovered (alpha 2.5 above xmin 20, simulation of known parameters)

@@ -74,9 +74,17 @@ def test_no_false_levy_claims_for_light_or_lognormal_tails(replicates, family):
     # the module's rule (tail model AIC-best AND power law beats both alternatives by Vuong, p < 0.1)
     claims = sum(r[family].tail_supported for r in replicates)
     assert claims <= 1, claims
-    # and the body of such data is described by a light-tailed model, never by a power law
-    assert all(r[family].best_step is not None and np.isfinite(r[family].best_step.second_moment())
-               for r in replicates)
+    # and AIC on the full range names the generating family (simulation of known family; exponential
+    # data may go to a family nesting it, AIC preferring one extra parameter ~16 % of the time per rival)
+    picks = Counter(best(r[family], "full") for r in replicates)
+    assert picks[family] >= (12 if family == "exponential" else 18), picks
+    if family == "exponential":
+        nesting = [r[family].best_step.params["shape"] for r in replicates if r[family].best_step.name != family]
+        assert all(abs(k - 1.0) < 0.2 for k in nesting), nesting  # shape 1 is the exponential
+        # the goodness of fit (Clauset et al. 2009, §4.1) rules the power law out on most exponential
+        # tails: at least 8 of 20, where a true power law gives at most 6 (99 % binomial band at 0.1)
+        gof = np.array([r[family].rows.set_index("model").at["power_law", "gof_p"] for r in replicates])
+        assert np.sum(gof <= 0.1) >= 8, gof
 
 
 def test_the_rule_can_support_a_wide_power_law_tail():

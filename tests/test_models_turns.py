@@ -1,10 +1,10 @@
-"""Turning-angle families against scipy.stats and directional-statistics identities."""
+"""Turning-angle families against closed-form MLEs, hand-written densities and directional identities."""
 
 import math
 
 import numpy as np
 import pytest
-from scipy import integrate, special, stats
+from scipy import integrate, optimize, special, stats
 
 from roamstat.models.base import wrap_angle
 from roamstat.models.turns import fit_uniform, fit_von_mises, fit_wrapped_cauchy
@@ -22,19 +22,24 @@ def wc_turns():
     return wrap_angle(stats.wrapcauchy.rvs(0.6, size=800, random_state=rng) - 0.4)
 
 
-def test_von_mises_matches_scipy_and_the_resultant_length(vm_turns):
+def test_von_mises_is_the_closed_form_mle(vm_turns):
     model = fit_von_mises(vm_turns)
-    kappa, loc, _ = stats.vonmises.fit(vm_turns, fscale=1)  # reference: scipy.stats.vonmises.fit
-    assert model.params["kappa"] == pytest.approx(kappa, rel=1e-9)
-    assert math.cos(model.params["mu"] - loc) == pytest.approx(1.0)
-    # Mardia & Jupp (2000), §5.3: mu is the circular mean, A(kappa) = mean resultant length
+    mu, kappa = model.params["mu"], model.params["kappa"]
+    # Mardia & Jupp (2000), §5.3.1: mu-hat is the direction of the mean resultant, and kappa-hat solves
+    # A(kappa) = I1(kappa) / I0(kappa) = mean resultant length; solved here with brentq, not scipy.stats
     resultant = np.mean(np.exp(1j * vm_turns))
-    assert model.params["mu"] == pytest.approx(np.angle(resultant), abs=1e-9)
-    a = special.i1(model.params["kappa"]) / special.i0(model.params["kappa"])
-    assert a == pytest.approx(abs(resultant), rel=1e-6)
-    assert model.mean_cos() == pytest.approx(a * math.cos(model.params["mu"]))
-    assert model.loglik == pytest.approx(np.sum(stats.vonmises.logpdf(vm_turns, kappa, loc=loc)), rel=1e-10)
-    assert -math.pi < model.params["mu"] <= math.pi
+    kappa_ref = optimize.brentq(lambda k: special.i1e(k) / special.i0e(k) - abs(resultant), 1e-9, 1e3, xtol=1e-14)
+    assert mu == pytest.approx(np.angle(resultant), abs=1e-9)
+    assert kappa == pytest.approx(kappa_ref, rel=1e-6)
+    # log-likelihood written out: sum kappa cos(t - mu) - n ln(2 pi I0(kappa)) (Mardia & Jupp 2000, §3.5; section from memory)
+    n = vm_turns.size
+    loglik = kappa * np.sum(np.cos(vm_turns - mu)) - n * (math.log(2 * math.pi * special.i0e(kappa)) + kappa)
+    assert model.loglik == pytest.approx(loglik, rel=1e-10)
+    a = special.i1(kappa) / special.i0(kappa)
+    assert model.mean_cos() == pytest.approx(a * math.cos(mu))
+    assert -math.pi < mu <= math.pi
+    # generating parameters recovered (simulation of known parameters)
+    assert mu == pytest.approx(2.8, abs=0.08) and kappa == pytest.approx(1.2, abs=0.15)
 
 
 def test_wrapped_cauchy_matches_scipy(wc_turns):
@@ -44,7 +49,9 @@ def test_wrapped_cauchy_matches_scipy(wc_turns):
     # reference: scipy.stats.wrapcauchy.fit for rho at our mu (loc and scale fixed)
     c_ref, _, _ = stats.wrapcauchy.fit(shifted, floc=0, fscale=1)
     assert rho == pytest.approx(c_ref, abs=1e-4)
-    assert model.loglik == pytest.approx(np.sum(stats.wrapcauchy.logpdf(shifted, rho)), rel=1e-10)
+    # density written out: (1 - rho^2) / (2 pi (1 + rho^2 - 2 rho cos(t - mu))) (Mardia & Jupp 2000, §3.5; section from memory)
+    hand = np.log((1 - rho**2) / (2 * math.pi * (1 + rho**2 - 2 * rho * np.cos(wc_turns - mu))))
+    assert model.loglik == pytest.approx(np.sum(hand), rel=1e-10)
     # a maximum over mu too: scipy's likelihood is lower a little to either side
     for d in (-0.01, 0.01):
         assert np.sum(stats.wrapcauchy.logpdf(np.mod(wc_turns - mu - d, 2 * math.pi), rho)) < model.loglik

@@ -47,23 +47,22 @@ def test_true_crw_animals_are_rejected_at_the_nominal_rate():
     table = deployment(lambda rng: crw_track(60, STEP, TURN, rng), N_ANIMALS, cfg, 101, fitted=False)
     n_p = int((table["p_value"] <= ALPHA).sum())
     n_curve = int((table["p_curve"] <= ALPHA).sum())
-    assert BAND[0] <= n_p <= BAND[1]
+    assert BAND[0] <= n_p <= BAND[1], n_p
     # ERL p-values are exact up to ties, which only make them conservative (Myllymäki et al. 2017)
-    assert n_curve <= BAND[1]
-    assert n_curve >= BAND[0]
-    # BH q-values are never below the p-values, so the verdicts are at least as conservative
-    assert int(table["verdict"].isin(["farther", "closer"]).sum()) <= n_p
-    assert (table["q_value"] >= table["p_value"] - 1e-15).all()
+    assert BAND[0] <= n_curve <= BAND[1], n_curve
+    # q-values: Benjamini & Hochberg (1995) step-up, reference scipy.stats.false_discovery_control
+    assert table["q_value"].to_numpy() == pytest.approx(stats.false_discovery_control(table["p_value"]), rel=1e-12)
 
 
 def test_fitted_crw_and_shuffle_nulls_hold_their_level_on_crw_animals():
     # the real pipeline: models.fit_animal on each simulated track, then the crw and shuffle nulls;
-    # estimated parameters make the test approximate, so only the upper edge of the band is required
+    # estimated parameters make the test approximate, yet the rate must stay in the two-sided band
+    # (a test that never rejects, or rejects too often, fails)
     cfg = Config(replicates=199, nulls=("crw", "shuffle"), alpha=ALPHA)
     table = deployment(lambda rng: crw_track(100, STEP, TURN, rng), N_ANIMALS, cfg, 202, fitted=True)
     for null, rows in table.groupby("null_model"):
-        assert int((rows["p_value"] <= ALPHA).sum()) <= BAND[1], null
-        assert int((rows["verdict"].isin(["farther", "closer"])).sum()) <= BAND[1], null
+        n_p = int((rows["p_value"] <= ALPHA).sum())
+        assert BAND[0] <= n_p <= BAND[1], (null, n_p)
 
 
 def test_goal_directed_walks_are_farther_and_home_ranging_walks_closer():
@@ -86,5 +85,5 @@ def test_levy_walks_are_not_called_farther_under_the_levy_null():
     tested = table[table["verdict"] != "insufficient"]
     assert len(tested) >= 0.9 * n  # the tail model was fitted for nearly all of them
     farther_p = int(((tested["p_value"] <= ALPHA) & (tested["observed_net_m"] > tested["null_median_m"])).sum())
-    assert farther_p <= stats.binom.interval(0.99, len(tested), ALPHA / 2)[1]
-    assert int((tested["verdict"] == "farther").sum()) <= farther_p
+    low, high = stats.binom.interval(0.99, len(tested), ALPHA / 2)
+    assert low <= farther_p <= high, farther_p

@@ -47,10 +47,15 @@ class FittedModel(ABC):
         as a power law's xmin); bootstrap intervals leave them out.
     circular_keys : tuple of str
         Keys that are angles; their intervals may extend past +-pi.
+    endpoint_keys : tuple of str
+        Keys estimated at a sample extreme (a truncated power law's fitted
+        xmax); bootstrap percentiles fail there, so their intervals come from
+        :meth:`endpoint_interval` instead.
     """
 
     fixed_keys: tuple = ()
     circular_keys: tuple = ()  # angle parameters (intervals are taken around the estimate)
+    endpoint_keys: tuple = ()
 
     name: str
     params: dict
@@ -85,6 +90,10 @@ class FittedModel(ABC):
     @abstractmethod
     def refit(self, x: np.ndarray) -> "FittedModel":
         """The same family, with the same fixed settings (xmin, ...), fitted to ``x``."""
+
+    def endpoint_interval(self, key: str, level: float) -> list:
+        """[lower, upper] for an ``endpoint_keys`` parameter (None = unbounded); see subclasses."""
+        raise KeyError(key)
 
     def __repr__(self) -> str:
         shown = ", ".join(f"{k}={v:.4g}" for k, v in sorted(self.params.items()))

@@ -5,7 +5,12 @@ family with the same fixed settings (for the tail models xmin, and xmax when
 given, are held fixed: the intervals are conditional on xmin).  The 2.5 and
 97.5 % percentiles of the refitted values form the interval (angles such as
 mu are measured from the estimate, so an interval may run past +-pi) (Efron &
-Tibshirani 1993, ch. 6 and 13).  Cost: replicates x one fit per model, so a
+Tibshirani 1993, ch. 6 and 13).  A parameter estimated at a sample extreme
+(the truncated power law's xmax, the largest step) is not resampled: every
+replicate's maximum lies below the estimate, so percentiles would give an
+interval entirely below it.  Its interval comes from the model's
+``endpoint_interval`` instead (an exact one-sided interval from the
+distribution of the maximum; upper bound None when unbounded).  Cost: replicates x one fit per model, so a
 few hundred replicates are plenty for a 95 % interval.
 
 References
@@ -23,6 +28,8 @@ import numpy as np
 
 from roamstat.models.base import FittedModel, wrap_angle
 
+LEVEL = 0.95  # coverage of every interval
+
 
 def bootstrap_ci(model: FittedModel, replicates: int, rng: np.random.Generator) -> tuple[dict, int]:
     """Percentile intervals for every estimated parameter of ``model``.
@@ -39,13 +46,17 @@ def bootstrap_ci(model: FittedModel, replicates: int, rng: np.random.Generator) 
     Returns
     -------
     ci : dict
-        Parameter name -> [lower, upper] (plain floats); empty without estimated parameters.
+        Parameter name -> [lower, upper] (plain floats; an endpoint parameter's upper
+        bound may be None = unbounded); empty without estimated parameters.
     n_failed : int
         Replicates whose refit failed (left out of the intervals).
     """
-    keys = [k for k in sorted(model.params) if k not in model.fixed_keys]
-    if not keys or replicates <= 0:
+    if replicates <= 0:
         return {}, 0
+    endpoint = {k: model.endpoint_interval(k, LEVEL) for k in model.endpoint_keys}
+    keys = [k for k in sorted(model.params) if k not in model.fixed_keys and k not in endpoint]
+    if not keys:
+        return endpoint, 0
     draws, failed = [], 0
     with warnings.catch_warnings(), np.errstate(all="ignore"):
         warnings.simplefilter("ignore", RuntimeWarning)
@@ -59,15 +70,15 @@ def bootstrap_ci(model: FittedModel, replicates: int, rng: np.random.Generator) 
                 continue
             draws.append([refit.params[k] for k in keys])
     if not draws:
-        return {}, failed
+        return endpoint, failed
     draws = np.asarray(draws)
     for j, key in enumerate(keys):
         if key in model.circular_keys:
             # measure angles from the estimate so an interval across +-pi stays one interval
             est = model.params[key]
             draws[:, j] = est + wrap_angle(draws[:, j] - est)
-    lo, hi = np.percentile(draws, [2.5, 97.5], axis=0)
-    return {k: [float(a), float(b)] for k, a, b in zip(keys, lo, hi)}, failed
+    lo, hi = np.percentile(draws, [50.0 * (1.0 - LEVEL), 50.0 * (1.0 + LEVEL)], axis=0)
+    return {**endpoint, **{k: [float(a), float(b)] for k, a, b in zip(keys, lo, hi)}}, failed
 
 
 def ci_json(ci: dict) -> str:

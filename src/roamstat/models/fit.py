@@ -26,30 +26,37 @@ computed within each set only, because AIC compares models of the same data.
 
 Vuong columns (tail rows)
 -------------------------
-On every tail row except the power law's own, ``vuong_stat`` is the
+On the left-truncated exponential and lognormal rows, ``vuong_stat`` is the
 normalised log-likelihood ratio of *that row's model against the power law*
 (positive: the row's model fits better; negative: the power law does) and
 ``vuong_p`` the two-sided p-value of its sign (Clauset et al. 2009, §5).  The
 power law is the xmax -> infinity limit of the truncated power law, so those two
-are nested and Vuong's normal approximation does not hold; that row's p-value
-is the likelihood-ratio test with chi-square(1) on 2|R| that Clauset et al.
-use for nested pairs, and it is only approximate because the nesting is at a
-boundary.
+are nested and Vuong's normal approximation does not hold; with xmax fitted at
+the largest step neither does chi-square(1).  That row's ``vuong_p`` is the
+parametric-bootstrap p-value of the likelihood ratio under the fitted power law
+(:mod:`roamstat.models.tail_tests`); small values mean the tail is cut off.
+
+Goodness of fit (power-law row)
+-------------------------------
+``gof_p`` is the semiparametric-bootstrap goodness-of-fit p-value of the power
+law, xmin re-estimated in every replicate (Clauset et al. 2009, §4.1); NaN on
+every other row.
 
 When is a power-law (Lévy-like) tail "supported"?
 -------------------------------------------------
 ``AnimalFits.tail_supported`` is True only when the better of power law and
-truncated power law has the lowest AIC in the tail set AND the power law
-beats both the left-truncated exponential and the left-truncated lognormal by
-Vuong's test (negative statistic on their rows with p < 0.1, the threshold of
-Clauset et al. 2009, §5).  The lognormal in particular mimics a power law over
-a limited range, so a lowest AIC alone is not evidence of a Lévy walk.  The
-rule is deliberately strict: in simulations (tests/test_models_recovery.py) it
-made no claim for exponential or lognormal data, but it also rarely supports a
-genuine power law unless the tail spans several decades of step length, because
-the left-truncated lognormal can follow a power law closely.  A False value
-therefore means "not shown", not "absent".  Such a verdict supports, not
-replaces, expert judgement of the movement data.
+truncated power law has the lowest AIC in the tail set, the power law is
+plausible by its goodness of fit (``gof_p > 0.1``, Clauset et al. 2009, §4.1),
+AND the power law beats both the left-truncated exponential and the
+left-truncated lognormal by Vuong's test (negative statistic on their rows
+with p < 0.1, the threshold of Clauset et al. 2009, §5).  The lognormal in
+particular mimics a power law over a limited range, so a lowest AIC alone is
+not evidence of a Lévy walk.  The rule is deliberately strict: in simulations
+(tests/test_models_recovery.py) it made no claim for exponential or lognormal
+data, but it also rarely supports a genuine power law unless the tail spans
+several decades of step length, because the left-truncated lognormal can follow
+a power law closely.  A False value therefore means "not shown", not "absent".
+Such a verdict supports, not replaces, expert judgement of the movement data.
 
 References
 ----------
@@ -74,14 +81,16 @@ from roamstat.models.base import FittedModel, StepModel, TurnModel
 from roamstat.models.bootstrap import bootstrap_ci, ci_json
 from roamstat.models.powerlaw_tail import MIN_TAIL, fit_power_law, fit_truncated_power_law
 from roamstat.models.select import akaike_weights, ks_statistic, vuong_test
+from roamstat.models.tail_tests import goodness_of_fit_p_value, truncation_p_value
 from roamstat.models.steps import FULL_RANGE, TAIL_REFIT, fit_step_family
 from roamstat.models.turns import TURN_FAMILIES
 
 MIN_VALUES = 10  # fewest observations for any fit (common practice, no source)
 VUONG_P = 0.1  # significance of the sign of the Vuong statistic (Clauset et al. 2009, §5)
+GOF_P = 0.1  # a power law with gof_p <= 0.1 is ruled out (Clauset et al. 2009, §4.1)
 
 COLUMNS = ["variable", "model", "comparison", "params", "n", "loglik", "aic", "aicc", "delta_aic",
-           "weight", "ks_stat", "best", "vuong_stat", "vuong_p", "note"]
+           "weight", "ks_stat", "best", "vuong_stat", "vuong_p", "gof_p", "note"]
 
 
 @dataclass
@@ -133,6 +142,7 @@ class _Candidate:
     model: FittedModel | None
     note: str
     vuong: tuple = (math.nan, math.nan)
+    gof_p: float = math.nan
 
 
 def fit_animal(steps_a: pd.DataFrame, cfg, rng: np.random.Generator) -> AnimalFits:
@@ -145,7 +155,8 @@ def fit_animal(steps_a: pd.DataFrame, cfg, rng: np.random.Generator) -> AnimalFi
     cfg : Config
         Uses ``min_step`` (metres) and ``bootstrap`` (replicates; 0 = none).
     rng : numpy.random.Generator
-        Used only for bootstrap replicates.
+        Source of the bootstrap replicates: the tail tests draw from child
+        generators spawned from it, the parameter intervals from ``rng`` itself.
 
     Returns
     -------
@@ -162,7 +173,7 @@ def fit_animal(steps_a: pd.DataFrame, cfg, rng: np.random.Generator) -> AnimalFi
     else:
         for name in FULL_RANGE:
             candidates.append(_attempt("step", "full", name, steps, partial(fit_step_family, name), counts_note))
-        tail_set, tail_problem = _tail_candidates(steps, counts_note)
+        tail_set, tail_problem = _tail_candidates(steps, counts_note, rng.spawn(2))
         candidates += tail_set
         if tail_problem:
             notes.append(f"tail: {tail_problem}")
@@ -242,7 +253,7 @@ def _too_little(x: np.ndarray, what: str) -> str:
     return ""
 
 
-def _attempt(variable, comparison, name, data, fitter, note, vuong_against=None, nested=False):
+def _attempt(variable, comparison, name, data, fitter, note, vuong_against=None):
     try:
         model = fitter(data)
     except (FloatingPointError, ValueError, RuntimeError) as exc:
@@ -251,11 +262,11 @@ def _attempt(variable, comparison, name, data, fitter, note, vuong_against=None,
         return _Candidate(variable, comparison, name, data, None, _join("fit failed", note))
     vuong = (math.nan, math.nan)
     if vuong_against is not None:
-        vuong = vuong_test(model.logpdf(data), vuong_against.logpdf(data), nested=nested)
+        vuong = vuong_test(model.logpdf(data), vuong_against.logpdf(data))
     return _Candidate(variable, comparison, name, data, model, note, vuong)
 
 
-def _tail_candidates(steps: np.ndarray, counts_note: str):
+def _tail_candidates(steps: np.ndarray, counts_note: str, rngs):
     power = fit_power_law(steps)
     if power is None:
         problem = f"not enough data for a tail fit (need {MIN_TAIL} steps at or above a candidate xmin)"
@@ -263,12 +274,14 @@ def _tail_candidates(steps: np.ndarray, counts_note: str):
     xmin = power.xmin
     tail = np.sort(steps[steps >= xmin])
     where = f"tail x >= xmin {xmin:.6g} m: {tail.size} of {steps.size} steps"
-    out = [_Candidate("step", "tail", "power_law", tail, power, _join(where, counts_note))]
-    nested_note = ("the power law is this model's xmax -> inf limit (nested): vuong_p from chi-square(1) "
-                   "on 2|LLR|, approximate")
-    out.append(_attempt("step", "tail", "truncated_power_law", tail,
-                        partial(fit_truncated_power_law, xmin=xmin), _join(where, nested_note, counts_note),
-                        vuong_against=power, nested=True))
+    gof_p = goodness_of_fit_p_value(steps, xmin, power.alpha, rngs[0])
+    out = [_Candidate("step", "tail", "power_law", tail, power, _join(where, counts_note), gof_p=gof_p)]
+    truncated = _attempt("step", "tail", "truncated_power_law", tail, partial(fit_truncated_power_law, xmin=xmin),
+                         _join(where, "vuong_p: bootstrap likelihood-ratio test against the power law", counts_note),
+                         vuong_against=power)
+    if truncated.model is not None:
+        truncated.vuong = (truncated.vuong[0], truncation_p_value(tail, xmin, rngs[1])[1])
+    out.append(truncated)
     for name in TAIL_REFIT:
         out.append(_attempt("step", "tail", name, tail, partial(fit_step_family, name, xmin=xmin),
                             _join(where, "likelihood left-truncated at xmin", counts_note),
@@ -287,7 +300,7 @@ def _rows(candidates) -> pd.DataFrame:
             "loglik": m.loglik if m else math.nan, "aic": m.aic if m else math.nan,
             "aicc": m.aicc if m else math.nan, "delta_aic": math.nan, "weight": math.nan,
             "ks_stat": ks_statistic(c.data, m.cdf) if m else math.nan, "best": False,
-            "vuong_stat": c.vuong[0], "vuong_p": c.vuong[1], "note": c.note,
+            "vuong_stat": c.vuong[0], "vuong_p": c.vuong[1], "gof_p": c.gof_p, "note": c.note,
         })
     rows = pd.DataFrame.from_records(records, columns=COLUMNS)
     for _, idx in rows.groupby("comparison", sort=False).groups.items():
@@ -318,6 +331,8 @@ def _tail_supported(rows: pd.DataFrame, tail: StepModel | None) -> bool:
         return False
     t = rows[rows["comparison"] == "tail"].set_index("model")
     if tail.name not in t.index or not bool(t.at[tail.name, "best"]):
+        return False
+    if not t.at["power_law", "gof_p"] > GOF_P:
         return False
     for alternative in TAIL_REFIT:
         if alternative not in t.index:

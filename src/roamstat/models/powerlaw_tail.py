@@ -26,6 +26,7 @@ References
 ----------
 Clauset, A., Shalizi, C. R. & Newman, M. E. J. (2009). Power-law
 distributions in empirical data. SIAM Review 51: 661-703.
+Casella, G. & Berger, R. L. (2002). Statistical Inference, 2nd ed. Duxbury.
 Humphries, N. E., Weimerskirch, H., Queiroz, N., Southall, E. J. & Sims, D. W.
 (2012). Foraging success of biological Lévy flights recorded in situ. PNAS
 109: 7169-7174.
@@ -101,6 +102,7 @@ class TruncatedPowerLaw(StepModel):
         self.xmax_fitted = bool(xmax_fitted)
         self.k = 2 if xmax_fitted else 1
         self.fixed_keys = ("xmin",) if xmax_fitted else ("xmin", "xmax")
+        self.endpoint_keys = ("xmax",) if xmax_fitted else ()
         self.support = (self.xmin, self.xmax)
 
     def logpdf(self, x):
@@ -135,6 +137,27 @@ class TruncatedPowerLaw(StepModel):
 
     def second_moment(self):
         return self._moment(2)
+
+    def endpoint_interval(self, key: str, level: float) -> list:
+        """One-sided interval [largest step, c] for a fitted xmax (exact when alpha is known).
+
+        The largest of n steps, M, has P(M <= m) = F(m; xmax)^n, which is
+        uniform at the true xmax; c is the xmax with F(M; c)^n = 1 - level, so
+        the interval covers the true xmax with probability ``level``
+        (a pivot on the maximum; Casella & Berger 2002, §9.2.3).  The exponent
+        is plugged in at its estimate.  c is None (unbounded) when even an
+        untruncated power law makes the observed maximum that likely.
+        """
+        if key != "xmax" or not self.xmax_fitted:
+            raise KeyError(key)
+        q = (1.0 - level) ** (1.0 / self.n)  # F(M; c) at the bound
+        a, s = 1.0 - self.alpha, math.log(self.xmax / self.xmin)
+        if abs(a * s) < 1e-12:
+            return [self.xmax, self.xmin * math.exp(s / q)]
+        inner = math.expm1(a * s) / q
+        if inner <= -1.0:
+            return [self.xmax, None]
+        return [self.xmax, self.xmin * math.exp(math.log1p(inner) / a)]
 
     def refit(self, x):
         return fit_truncated_power_law(x, self.xmin, None if self.xmax_fitted else self.xmax)
@@ -203,6 +226,26 @@ def scan_xmin(x_sorted: np.ndarray) -> float | None:
     float or None
         The chosen xmin, or None without a usable candidate.
     """
+    found = scan_xmin_distance(x_sorted)
+    return None if found is None else found[0]
+
+
+def scan_xmin_distance(x_sorted: np.ndarray, max_candidates: int | None = None) -> tuple[float, float] | None:
+    """:func:`scan_xmin` together with the smallest KS distance it found.
+
+    Parameters
+    ----------
+    x_sorted : ndarray
+        Positive values, sorted ascending.
+    max_candidates : int, optional
+        Scan at most this many candidates (evenly spaced by rank); default: the
+        module's bound, max(``MIN_CANDIDATES``, ``SCAN_CELLS`` / n).
+
+    Returns
+    -------
+    (xmin, distance) or None
+        None without a usable candidate.
+    """
     n = x_sorted.size
     lnx = np.log(x_sorted)
     values, first = np.unique(x_sorted[: int(XMIN_QUANTILE * n)], return_index=True)
@@ -210,7 +253,7 @@ def scan_xmin(x_sorted: np.ndarray) -> float | None:
     first = first[keep]
     if first.size == 0:
         return None
-    cap = max(MIN_CANDIDATES, SCAN_CELLS // n)
+    cap = max(MIN_CANDIDATES, SCAN_CELLS // n) if max_candidates is None else max_candidates
     if first.size > cap:
         first = first[np.unique(np.linspace(0, first.size - 1, cap).round().astype(int))]
     suffix = np.concatenate([np.cumsum(lnx[::-1])[::-1], [0.0]])  # suffix[i] = sum_{j>=i} ln x_j
@@ -230,7 +273,7 @@ def scan_xmin(x_sorted: np.ndarray) -> float | None:
         j = int(np.argmin(d))
         if d[j] < best_d:
             best_d, best_i = float(d[j]), int(idx[j])
-    return float(x_sorted[best_i])
+    return float(x_sorted[best_i]), best_d
 
 
 def fit_truncated_power_law(x: np.ndarray, xmin: float, xmax: float | None = None) -> TruncatedPowerLaw | None:

@@ -17,7 +17,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import special, stats
+from scipy import special
 
 
 def akaike_weights(aic) -> tuple[np.ndarray, np.ndarray]:
@@ -70,22 +70,20 @@ def ks_statistic(x, cdf) -> float:
     return float(max(np.max((i + 1) / n - f), np.max(f - i / n)))
 
 
-def vuong_test(loglik_a, loglik_b, nested: bool = False) -> tuple[float, float]:
+def vuong_test(loglik_a, loglik_b) -> tuple[float, float]:
     """Normalised log-likelihood ratio of model a against model b (Vuong 1989).
 
     As in Clauset et al. (2009), §5 and Appendix C: with pointwise
     differences d_i = ln p_a(x_i) - ln p_b(x_i), R = sum d_i and sigma^2 the
-    variance of d_i, the statistic is R / (sigma sqrt(n)); positive favours a.
-    Non-nested: two-sided p = erfc(|stat| / sqrt 2).  Nested (b a special or
-    limiting case of a): p = P(chi^2_1 > 2|R|), approximate when the nesting is
-    at a parameter boundary.
+    variance of d_i, the statistic is R / (sigma sqrt(n)); positive favours a,
+    with two-sided p = erfc(|stat| / sqrt 2).  For non-nested models only; the
+    nested truncated-versus-plain power-law pair has its own bootstrap test in
+    :mod:`roamstat.models.tail_tests`.
 
     Parameters
     ----------
     loglik_a, loglik_b : array_like
         Pointwise log-likelihoods of the same observations.
-    nested : bool
-        Whether one model is nested in the other.
 
     Returns
     -------
@@ -98,6 +96,4 @@ def vuong_test(loglik_a, loglik_b, nested: bool = False) -> tuple[float, float]:
     r = float(d.sum())
     sigma = float(d.std())
     stat = r / (sigma * math.sqrt(n)) if sigma > 0 else 0.0
-    if nested:
-        return stat, float(stats.chi2.sf(2.0 * abs(r), 1))
     return stat, float(special.erfc(abs(stat) / math.sqrt(2.0)))
