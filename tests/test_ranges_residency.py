@@ -24,6 +24,10 @@ SEEDS = [201, 202, 203, 204]
 
 def _track(kind, seed):
     rng = np.random.default_rng(seed)
+    if kind == "mixed_migrant":
+        # Out 30 km on day 40, back 18 km (60 % of the way) on day 90: Bunnefeld et al.'s (2011) mixed form.
+        return shifted_range_track(lambda t: logistic_move(t, 40, 30000) - logistic_move(t, 90, 18000), 130, 6, 1500,
+                                   2.0, rng)
     if kind == "resident":
         return shifted_range_track(lambda t: np.zeros_like(t), 130, 6, 1500, 10.0, rng)
     if kind == "disperser":
@@ -31,13 +35,13 @@ def _track(kind, seed):
     return shifted_range_track(lambda t: logistic_move(t, 40, 30000, 90), 130, 6, 1500, 2.0, rng)
 
 
-@pytest.mark.parametrize("kind", ["resident", "disperser", "migrant"])
+@pytest.mark.parametrize("kind", ["resident", "disperser", "migrant", "mixed_migrant"])
 @pytest.mark.parametrize("seed", SEEDS)
 def test_simulated_patterns_are_recovered(kind, seed):
     row, curve = residency_animal(_track(kind, seed), Config())
     assert row["pattern"] == kind, row["note"]
     assert row["delta_aic"] > 2
-    assert set(curve["fitted"]) == {"sedentary", "resident", "disperser", "migrant", "nomad"}
+    assert set(curve["fitted"]) == {"sedentary", "resident", "disperser", "migrant", "mixed_migrant", "nomad"}
     assert len(curve["nsd_km2"]) == len(curve["time"]) == len(curve["fitted"][kind])
 
 
@@ -79,4 +83,31 @@ def test_range_study_candidates_respect_the_crw_verdict():
     out = finalise_residency(residency, nulls)
     # Rule of the issue: resident or sedentary, and not "farther" under the crw null (other nulls ignored).
     assert out["range_study_candidate"].tolist() == [True, True, False, False]
+    assert "farther than the crw null" in out["range_study_note"].iloc[3]
     assert finalise_residency(residency, None)["range_study_candidate"].tolist() == [True, True, False, True]
+
+
+def test_range_study_candidates_need_a_range_resident_model_and_enough_effective_fixes():
+    # Issue 14 item 4: a range-resident best motion model and enough effective samples, and the note says
+    # which condition failed (rule of the issue, no published source).
+    residency = pd.DataFrame({"animal_id": ["a", "b", "c"], "pattern": ["resident", "resident", "resident"]})
+    motion = pd.DataFrame({"animal_id": ["a", "a", "b", "b", "c", "c"], "model": ["ou", "brownian"] * 3,
+                           "best": [True, False, False, True, True, False]})
+    ranges = pd.DataFrame({"animal_id": ["a", "b", "c"], "n_effective": [25.0, 30.0, 4.0]})
+    out = finalise_residency(residency, None, motion, ranges)
+    assert out["range_study_candidate"].tolist() == [True, False, False]
+    assert "brownian is not range-resident" in out["range_study_note"].iloc[1]
+    assert "effective sample size 4.0" in out["range_study_note"].iloc[2]
+
+
+def test_a_disperser_the_random_walk_explains_becomes_nomad_with_the_reason():
+    residency = pd.DataFrame({"animal_id": ["a", "b", "c"], "pattern": ["disperser", "disperser", "migrant"],
+                              "pattern_reason": ["disperser: lowest AIC"] * 3})
+    nulls = pd.DataFrame({"animal_id": ["a", "b", "c"], "null_model": ["crw"] * 3,
+                          "verdict": ["consistent", "farther", "consistent"]})
+    motion = pd.DataFrame({"animal_id": ["a", "b", "c"], "model": ["brownian", "ctcrw", "ou"], "best": True})
+    out = finalise_residency(residency, nulls, motion)
+    # a: consistent + unbounded best model -> nomad; b: farther than the null -> kept; c: range-resident
+    # best model (its displacement could be within a range) -> kept.
+    assert out["pattern"].tolist() == ["nomad", "disperser", "migrant"]
+    assert "consistent with the crw" in out["pattern_reason"].iloc[0]
