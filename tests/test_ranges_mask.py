@@ -48,7 +48,7 @@ def test_masked_geojson_reveals_no_true_position():
         assert abs(GEOD.geometry_area_perimeter(shape(feat["geometry"]))[0]) / 1e6 == pytest.approx(row["area_km2"], rel=2e-3)
     # Figures get coordinates relative to the hidden origin, not the true frame.
     _, _, true_extras = ranges_animal(fixes, Config())
-    shift = extras["track_xy"].to_numpy() - true_extras["track_xy"].to_numpy()
+    shift = extras.track_xy.to_numpy() - true_extras.track_xy.to_numpy()
     assert np.allclose(shift, shift[0]) and np.hypot(*shift[0]) > 0
 
 
@@ -63,7 +63,7 @@ def test_grid_masking_puts_fixes_on_cell_centres():
     fixes = independent_normal(200, 3000.0, np.random.default_rng(4))
     grid = 1000.0
     _, _, extras = ranges_animal(fixes, Config(mask_locations=True, mask_grid=grid), rng=np.random.default_rng(1))
-    xy = extras["track_xy"].to_numpy()
+    xy = extras.track_xy.to_numpy()
     assert np.allclose(np.mod(xy, grid), grid / 2)
 
 

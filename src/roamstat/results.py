@@ -26,4 +26,4 @@ class AnimalResult:
     fitted: object = None  # models.AnimalFits, for the report's density overlays
     null_curves: dict = field(default_factory=dict)
     residency_curve: dict = field(default_factory=dict)
-    range_extras: dict = field(default_factory=dict)
+    range_extras: object = None  # ranges.RangeExtras (a plain dict is also read by the report)

@@ -1,4 +1,4 @@
-"""Autocorrelation-aware range quantities: effective sample size, AKDE bandwidth, area correction.
+"""Autocorrelation-aware range quantities: effective sample size, kernel bandwidth, area correction.
 
 Every quantity here needs only the fix times and the position autocorrelation
 function (ACF) rho(lag) of a fitted range-resident (stationary) movement
