@@ -54,8 +54,8 @@ def test_masked_geojson_reveals_no_true_position():
 
 def test_each_masked_run_draws_a_new_hidden_origin():
     fixes = independent_normal(100, 500.0, np.random.default_rng(2))
-    one = ranges_animal(fixes, Config(mask_locations=True))[2]["track_xy"].to_numpy()
-    two = ranges_animal(fixes, Config(mask_locations=True))[2]["track_xy"].to_numpy()
+    one = ranges_animal(fixes, Config(mask_locations=True))[2].track_xy.to_numpy()
+    two = ranges_animal(fixes, Config(mask_locations=True))[2].track_xy.to_numpy()
     assert not np.allclose(one, two)
 
 
