@@ -151,7 +151,7 @@ def relative_mise(h: float, lags_rho: np.ndarray, weights: np.ndarray) -> float:
         Correlation at each lag of :func:`lag_pairs` and the pair counts.
     """
     h2 = h * h
-    pairs = float(np.sum(weights / (2.0 * (h2 + 1.0 - lags_rho)))) / float(weights.sum()) ** 2
+    pairs = float(np.sum(weights / (2.0 * (h2 + 1.0 - lags_rho)))) / float(weights.sum())
     return pairs - 2.0 / (2.0 + h2) + 0.5
 
 

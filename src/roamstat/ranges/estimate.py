@@ -108,7 +108,7 @@ def model_ranges(t_s, x, y, model: RangeModel, centre_xy) -> dict:
         shape = affinity.scale(isopleth(grid, level / 100.0), scale, scale, origin=origin)
         area = shape.area / 1e6
         out[("kde_autocorr", level)] = (shape, area, *area_interval(area, n_eff), h_m)
-        area = gaussian_area(model.sigma_m, level / 100.0, w)
+        area = gaussian_area(model.sigma_m, level / 100.0)
         out[("gaussian", level)] = (gaussian_outline(centre_xy, area), area, *area_interval(area, n_eff), None)
     return out
 
