@@ -10,10 +10,10 @@ import pandas as pd
 import pytest
 from scipy.stats import norm
 
-from ranges_sim import START, logistic_move, shifted_range_track
+from ranges_sim import START, fixes_from_xy, logistic_move, shifted_range_track
 from roamstat.config import Config
 from roamstat.ranges import finalise_residency, residency_animal
-from roamstat.ranges.residency import aic_from_rss
+from roamstat.ranges.residency import aic_from_rss, random_walk_spread
 
 # Simulated, not real: an Ornstein-Uhlenbeck animal (stationary sd 1.5 km per axis, 6-hourly fixes,
 # 130 days) whose range centre stays put (resident), moves 30 km on day 40 (disperser), or moves 30 km
@@ -111,3 +111,36 @@ def test_a_disperser_the_random_walk_explains_becomes_nomad_with_the_reason():
     # best model (its displacement could be within a range) -> kept.
     assert out["pattern"].tolist() == ["nomad", "disperser", "migrant"]
     assert "consistent with the crw" in out["pattern_reason"].iloc[0]
+
+
+def _random_walk(seed, n=521, step_sd_m=1500.0):
+    # Diffusive 2-D Gaussian random walk, 6-hourly fixes for 130 days (the case of issue 14).
+    rng = np.random.default_rng(seed)
+    xy = np.vstack([[0.0, 0.0], rng.normal(0, step_sd_m, (n - 1, 2)).cumsum(axis=0)])
+    return fixes_from_xy(xy[:, 0], xy[:, 1], np.arange(n) * 0.25, animal_id=f"w{seed}")
+
+
+@pytest.mark.slow
+def test_diffusive_random_walks_are_never_called_dispersers():
+    # Issue 14: 12 diffusive random walks used to be classed 7 disperser / 4 nomad / 1 resident. A random walk
+    # never settles, so no two-range class may survive the settled-range guard (the dispersers and migrants
+    # above, simulated with settled ranges, are still recovered: the guard is two-sided in effect).
+    patterns = [residency_animal(_random_walk(seed), Config())[0]["pattern"] for seed in range(300, 312)]
+    assert not set(patterns) & {"disperser", "migrant", "mixed_migrant"}, patterns
+
+
+def test_random_walk_spread_is_one_for_brownian_motion_and_small_for_a_settled_range():
+    # Brownian motion: the mean squared deviation from the time average over a window L is k L / 6 for a 2-D
+    # step rate k (Karhunen-Loeve eigenvalues of the demeaned Brownian bridge; common practice, no source).
+    rng = np.random.default_rng(9)
+    t = np.arange(2001) / 24.0
+    qs = []
+    for _ in range(200):
+        xy = np.vstack([[0, 0], rng.normal(0, 100.0, (2000, 2)).cumsum(axis=0)])
+        qs.append(random_walk_spread(t, xy[:, 0], xy[:, 1], np.ones(t.size, bool)))
+    assert 0.9 < np.mean(qs) < 1.1
+    # A settled Ornstein-Uhlenbeck range (tau 1 day, window 80 days): about 3 tau / L (dt << tau).
+    track = shifted_range_track(lambda s: np.zeros_like(s), 80, 1, 1000, 1.0, rng)
+    days = (track["time"] - track["time"].iloc[0]).dt.total_seconds().to_numpy() / 86400
+    q = random_walk_spread(days, track["x_m"].to_numpy(), track["y_m"].to_numpy(), np.ones(len(days), bool))
+    assert 0.5 * 3 / 80 < q < 2 * 3 / 80

@@ -63,6 +63,9 @@ MAX_CURVE_POINTS = 1500  # points handed to the report figure
 WEAK_DELTA = 2.0  # delta AIC below which support is weak (Burnham & Anderson 2002)
 # Fewer effective fixes make the area CI span more than a factor ~2.5 (chi-square, 2 n_eff dof) (judgement).
 MIN_N_EFFECTIVE = 10.0
+# A range part must spread less than this share of a random walk's spread over the same time: about a stay
+# of 10 attraction times (3 tau / L); a random walk's window falls below it with probability of a few % (judgement).
+SETTLED_MAX = 0.3
 RANGE_RESIDENT = frozenset({"ou", "ou_ctcrw"})  # stationary motion models; roamstat.motion.RANGE_RESIDENT
 DAY_S = 86400.0
 
@@ -220,6 +223,11 @@ def ranges_apart(model: str, p, t, x, y):
             return False, "fewer than 5 fixes after the fitted return"
     if start.sum() < 5 or parts["far range"].sum() < 5:
         return False, "fewer than 5 fixes before departure or at the far range"
+    for name, mask in parts.items():
+        spread = random_walk_spread(t, x, y, mask)
+        if not spread < SETTLED_MAX:
+            return False, (f"the {name} is not settled (its spread is {spread:.2f} of what a random walk with the "
+                           f"track's own step rate would reach in that time)")
     pairs = [("start", "far range")]
     if model == "mixed_migrant":
         pairs += [("start", "return range"), ("far range", "return range")]
@@ -228,6 +236,27 @@ def ranges_apart(model: str, p, t, x, y):
         if not apart:
             return False, f"{a} and {b} overlap ({why})"
     return True, ""
+
+
+def random_walk_spread(t, x, y, part) -> float:
+    """Spread of the fixes in ``part`` relative to a random walk's over the same time.
+
+    q = r² / (k L / 6), with r² the mean squared distance of the part's fixes
+    from their centroid, L the part's duration and k the mean of
+    |step|² / dt over the whole track: a 2-D Brownian motion of that step
+    rate has expected r² = k L / 6 over a window of length L (the mean
+    squared deviation of Brownian motion from its time average is a sixth of
+    its variance rate times L), so q is about 1 for a random walk, however
+    long, and about 3 tau / L for a range of attraction time tau << L
+    (derived here; the idea of comparing spread with diffusion is Turchin's
+    1998 NSD argument).
+    """
+    steps = np.diff(t)
+    ok = steps > 0
+    rate = float(np.mean((np.diff(x)[ok] ** 2 + np.diff(y)[ok] ** 2) / steps[ok])) if ok.any() else math.nan
+    duration = float(t[part].max() - t[part].min())
+    r2 = float(np.mean((x[part] - x[part].mean()) ** 2 + (y[part] - y[part].mean()) ** 2))
+    return r2 / (rate * duration / 6.0) if rate > 0 and duration > 0 else math.nan
 
 
 def _apart(x, y, first, second):
@@ -400,9 +429,12 @@ def finalise_residency(residency: pd.DataFrame, null_tests: pd.DataFrame | None 
 
     A disperser, migrant or mixed migrant becomes ``nomad`` when the
     unbounded random-walk null (``ctcrw`` if run, else ``crw``) finds the
-    net displacement ``consistent`` with it and, where motion models were
-    fitted, the best one is not range-resident: such a track gives no
-    evidence of settling anywhere.
+    net displacement ``consistent`` with it and the best motion model is
+    not range-resident: such a track gives no evidence of settling anywhere.
+    Both are needed: a true disperser's displacement is often within a
+    random walk's reach, so the verdict alone has little power (without
+    motion models nothing is overruled; the NSD fit's own guard,
+    :func:`ranges_apart`, already asks every range to be settled).
 
     An animal is a candidate for a home-range study when (1) its pattern is
     resident or sedentary, (2) its verdict under that null is not
@@ -440,15 +472,13 @@ def finalise_residency(residency: pd.DataFrame, null_tests: pd.DataFrame | None 
     best = _best_motion(motion)
     n_eff = _n_effective(ranges)
     explained = ids.map(verdicts).eq("consistent") & out["pattern"].isin(TWO_RANGE)
-    if best is not None:
-        explained &= ids.map(best).notna() & ~ids.map(best).isin(sorted(RANGE_RESIDENT))
+    explained &= ids.map(best or {}).notna() & ~ids.map(best or {}).isin(sorted(RANGE_RESIDENT))
     for i in np.flatnonzero(explained.to_numpy()):
         old = out["pattern"].iat[i]
-        model = f"; best motion model {best[ids.iat[i]]}" if best is not None else ""
         out.iat[i, out.columns.get_loc("pattern")] = "nomad"
         out.iat[i, out.columns.get_loc("pattern_reason")] = (
             f"nomad: the NSD curve suggested {old}, but the net displacement is consistent with the {null_name} "
-            f"random-walk null{model}: no evidence of settling in another range")
+            f"random-walk null and the best motion model ({best[ids.iat[i]]}) has no home range")
     failed = [[] for _ in range(len(out))]
     for i, (animal, pattern) in enumerate(zip(ids, out["pattern"].astype(str))):
         if pattern not in ("resident", "sedentary"):
