@@ -66,7 +66,6 @@ MIN_N_EFFECTIVE = 10.0
 # A range part must spread less than this share of a random walk's spread over the same time: about a stay
 # of 10 attraction times (3 tau / L); a random walk's window falls below it with probability of a few % (judgement).
 SETTLED_MAX = 0.3
-RANGE_RESIDENT = frozenset({"ou", "ou_ctcrw"})  # stationary motion models; roamstat.motion.RANGE_RESIDENT
 DAY_S = 86400.0
 
 
@@ -460,6 +459,8 @@ def finalise_residency(residency: pd.DataFrame, null_tests: pd.DataFrame | None 
         A copy with ``pattern``/``pattern_reason`` possibly overruled and
         ``range_study_candidate`` (bool), ``range_study_note``.
     """
+    from roamstat.motion import RANGE_RESIDENT  # the registry's one list (imported late: numba is slow to load)
+
     out = residency.copy()
     if "pattern_reason" not in out.columns:
         out["pattern_reason"] = ""
