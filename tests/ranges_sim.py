@@ -53,3 +53,34 @@ def independent_normal(n, sigma_m, rng, lat0=61.0, lon0=15.0) -> pd.DataFrame:
     """Independent isotropic bivariate-normal fixes, one per hour."""
     xy = rng.normal(0.0, sigma_m, size=(n, 2))
     return fixes_from_xy(xy[:, 0], xy[:, 1], np.arange(n) / 24.0, lat0, lon0)
+
+
+def ou_positions(t_s, sigma_m, tau_s, rng) -> np.ndarray:
+    """Exact isotropic Ornstein-Uhlenbeck positions (n, 2) about the origin at times ``t_s``, started stationary.
+
+    x(t + d) = a x(t) + sigma sqrt(1 - a²) e with a = exp(-d / tau): the exact transition of the OU
+    process (Uhlenbeck & Ornstein 1930; Dunn & Gipson 1977).
+    """
+    t = np.asarray(t_s, float)
+    xy = np.empty((t.size, 2))
+    xy[0] = rng.normal(0.0, sigma_m, 2)
+    a = np.exp(-np.diff(t) / tau_s)
+    e = rng.normal(size=(t.size - 1, 2))
+    for i in range(1, t.size):
+        xy[i] = a[i - 1] * xy[i - 1] + sigma_m * np.sqrt(1 - a[i - 1] ** 2) * e[i - 1]
+    return xy
+
+
+def ou_sigma_given_tau(xy, dt_s, tau_s) -> tuple[float, np.ndarray]:
+    """Maximum-likelihood stationary SD per axis and centre of regular OU fixes when tau is known.
+
+    The exact AR(1) likelihood by the Prais-Winsten transform (Prais & Winsten 1954): z_1 = sqrt(1 - a²) x_1,
+    z_i = x_i - a x_(i-1), so z = c mu + independent noise of variance sigma² (1 - a²); both axes pooled.
+    """
+    a = np.exp(-dt_s / tau_s)
+    c = np.full(len(xy), 1 - a)
+    c[0] = np.sqrt(1 - a * a)
+    z = np.vstack([c[0] * xy[:1], xy[1:] - a * xy[:-1]])
+    mu = (c @ z) / (c @ c)
+    resid = z - c[:, None] * mu[None, :]
+    return float(np.sqrt(np.sum(resid ** 2) / (2 * len(xy) * (1 - a * a)))), mu

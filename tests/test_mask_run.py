@@ -81,7 +81,7 @@ def test_every_masked_output_shares_one_origin(subset, tmp_path, extra):
     drawn = report_tables(result.loaded, result.tables, cfg)
     for animal in result.animals:
         own = fixes[fixes["animal_id"] == animal.animal_id][["x_m", "y_m"]].to_numpy()
-        assert np.allclose(animal.range_extras["track_xy"].to_numpy(), own, atol=1e-6)
+        assert np.allclose(animal.range_extras.track_xy.to_numpy(), own, atol=1e-6)
         if len(drawn["fixes"]):
             mine = drawn["fixes"][drawn["fixes"]["animal_id"] == animal.animal_id][["x_m", "y_m"]].to_numpy()
             assert np.allclose(mine, own, atol=1e-6)

@@ -22,6 +22,7 @@ import pytest
 
 from roamstat.cli import build_parser, config_from_args
 from roamstat.ranges.mask import HiddenOrigin
+from roamstat.ranges.estimate import MODEL_RANGES, RANGES
 from roamstat.run import run_command
 
 SAMPLE = Path(__file__).resolve().parents[1] / "sample_tracks" / "collars.csv"
@@ -94,7 +95,9 @@ def test_option_pair_keeps_the_row_accounting(pair, runs):
     assert (residency["pattern"] != "undetermined").all()
     mcp = ranges[(ranges["method"] == "mcp") & (ranges["level"] == 100)].set_index("animal_id")
     assert mcp["n_fixes"].to_dict() == per_animal.to_dict()
-    assert len(ranges) == 4 * len(per_animal) and (ranges["area_km2"] > 0).all()
+    assert len(ranges) == len(RANGES + MODEL_RANGES) * len(per_animal)
+    data_ranges = ranges[ranges["method"].isin({m for m, _ in RANGES})]
+    assert (data_ranges["area_km2"] > 0).all()
 
     # Steps follow the analysed track: the regular grid, split at long gaps.
     assert set(steps["animal_id"]) == set(per_animal.index)

@@ -93,5 +93,5 @@ def test_bad_bandwidth_is_a_user_error():
 def test_too_few_fixes_gives_rows_with_a_reason_and_no_features():
     fixes = independent_normal(6, 100.0, np.random.default_rng(1))
     rows, features, _ = ranges_animal(fixes, Config())
-    assert len(rows) == 4 and features == []
+    assert len(rows) == 8 and features == []  # mcp, kde, kde_autocorr, gaussian at two levels each
     assert all(math.isnan(r["area_km2"]) and "at least" in r["note"] for r in rows)

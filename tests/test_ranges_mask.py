@@ -49,16 +49,16 @@ def test_masked_geojson_reveals_no_true_position():
     # Figures get coordinates relative to the hidden origin, not the true frame: distances between
     # fixes are kept (geodesic, pyproj.Geod; Karney 2013), positions are not.
     _, _, true_extras = ranges_animal(fixes, Config())
-    xy = extras["track_xy"].to_numpy()
+    xy = extras.track_xy.to_numpy()
     d_true = GEOD.inv(fixes["lon"][:-1], fixes["lat"][:-1], fixes["lon"][1:], fixes["lat"][1:])[2]
     assert np.allclose(np.hypot(*np.diff(xy, axis=0).T), d_true, rtol=1e-3)
-    assert np.min(np.hypot(*(xy - true_extras["track_xy"].to_numpy()).T)) > 100.0
+    assert np.min(np.hypot(*(xy - true_extras.track_xy.to_numpy()).T)) > 100.0
 
 
 def test_each_masked_run_draws_a_new_hidden_origin():
     fixes = independent_normal(100, 500.0, np.random.default_rng(2))
-    one = ranges_animal(fixes, Config(mask_locations=True))[2]["track_xy"].to_numpy()
-    two = ranges_animal(fixes, Config(mask_locations=True))[2]["track_xy"].to_numpy()
+    one = ranges_animal(fixes, Config(mask_locations=True))[2].track_xy.to_numpy()
+    two = ranges_animal(fixes, Config(mask_locations=True))[2].track_xy.to_numpy()
     assert not np.allclose(one, two)
 
 
@@ -67,7 +67,7 @@ def test_grid_masking_puts_fixes_on_cell_centres():
     grid = 1000.0
     origin = hidden_origin(fixes["lat"], fixes["lon"], grid, np.random.default_rng(1))
     _, _, extras = ranges_animal(fixes, Config(mask_locations=True, mask_grid=grid), origin)
-    xy = extras["track_xy"].to_numpy()
+    xy = extras.track_xy.to_numpy()
     assert np.allclose(np.mod(xy, grid), grid / 2)
 
 
@@ -99,8 +99,8 @@ def test_one_origin_masks_outlines_and_fixes_alike():
     origin = hidden_origin(fixes["lat"], fixes["lon"], rng=np.random.default_rng(5))
     _, _, extras = ranges_animal(fixes, Config(mask_locations=True), origin)
     masked = mask_fixes(fixes, origin)[["x_m", "y_m"]].to_numpy()
-    mcp = next(c["geometry"] for c in extras["contours"] if (c["method"], c["level"]) == ("mcp", 100))
+    mcp = next(c["geometry"] for c in extras.contours if (c["method"], c["level"]) == ("mcp", 100))
     vertices = np.asarray(mcp.exterior.coords)
     gap = np.min(np.hypot(vertices[:, None, 0] - masked[None, :, 0], vertices[:, None, 1] - masked[None, :, 1]), axis=1)
     assert gap.max() < 0.05  # metres
-    assert np.allclose(extras["track_xy"].to_numpy(), masked)
+    assert np.allclose(extras.track_xy.to_numpy(), masked)

@@ -10,10 +10,10 @@ import pandas as pd
 import pytest
 from scipy.stats import norm
 
-from ranges_sim import START, logistic_move, shifted_range_track
+from ranges_sim import START, fixes_from_xy, logistic_move, shifted_range_track
 from roamstat.config import Config
 from roamstat.ranges import finalise_residency, residency_animal
-from roamstat.ranges.residency import aic_from_rss
+from roamstat.ranges.residency import aic_from_rss, random_walk_spread
 
 # Simulated, not real: an Ornstein-Uhlenbeck animal (stationary sd 1.5 km per axis, 6-hourly fixes,
 # 130 days) whose range centre stays put (resident), moves 30 km on day 40 (disperser), or moves 30 km
@@ -24,6 +24,10 @@ SEEDS = [201, 202, 203, 204]
 
 def _track(kind, seed):
     rng = np.random.default_rng(seed)
+    if kind == "mixed_migrant":
+        # Out 30 km on day 40, back 18 km (60 % of the way) on day 90: Bunnefeld et al.'s (2011) mixed form.
+        return shifted_range_track(lambda t: logistic_move(t, 40, 30000) - logistic_move(t, 90, 18000), 130, 6, 1500,
+                                   2.0, rng)
     if kind == "resident":
         return shifted_range_track(lambda t: np.zeros_like(t), 130, 6, 1500, 10.0, rng)
     if kind == "disperser":
@@ -31,13 +35,13 @@ def _track(kind, seed):
     return shifted_range_track(lambda t: logistic_move(t, 40, 30000, 90), 130, 6, 1500, 2.0, rng)
 
 
-@pytest.mark.parametrize("kind", ["resident", "disperser", "migrant"])
+@pytest.mark.parametrize("kind", ["resident", "disperser", "migrant", "mixed_migrant"])
 @pytest.mark.parametrize("seed", SEEDS)
 def test_simulated_patterns_are_recovered(kind, seed):
     row, curve = residency_animal(_track(kind, seed), Config())
     assert row["pattern"] == kind, row["note"]
     assert row["delta_aic"] > 2
-    assert set(curve["fitted"]) == {"sedentary", "resident", "disperser", "migrant", "nomad"}
+    assert set(curve["fitted"]) == {"sedentary", "resident", "disperser", "migrant", "mixed_migrant", "nomad"}
     assert len(curve["nsd_km2"]) == len(curve["time"]) == len(curve["fitted"][kind])
 
 
@@ -79,4 +83,64 @@ def test_range_study_candidates_respect_the_crw_verdict():
     out = finalise_residency(residency, nulls)
     # Rule of the issue: resident or sedentary, and not "farther" under the crw null (other nulls ignored).
     assert out["range_study_candidate"].tolist() == [True, True, False, False]
+    assert "farther than the crw null" in out["range_study_note"].iloc[3]
     assert finalise_residency(residency, None)["range_study_candidate"].tolist() == [True, True, False, True]
+
+
+def test_range_study_candidates_need_a_range_resident_model_and_enough_effective_fixes():
+    # Issue 14 item 4: a range-resident best motion model and enough effective samples, and the note says
+    # which condition failed (rule of the issue, no published source).
+    residency = pd.DataFrame({"animal_id": ["a", "b", "c"], "pattern": ["resident", "resident", "resident"]})
+    motion = pd.DataFrame({"animal_id": ["a", "a", "b", "b", "c", "c"], "model": ["ou", "brownian"] * 3,
+                           "best": [True, False, False, True, True, False]})
+    ranges = pd.DataFrame({"animal_id": ["a", "b", "c"], "n_effective": [25.0, 30.0, 4.0]})
+    out = finalise_residency(residency, None, motion, ranges)
+    assert out["range_study_candidate"].tolist() == [True, False, False]
+    assert "brownian is not range-resident" in out["range_study_note"].iloc[1]
+    assert "effective sample size 4.0" in out["range_study_note"].iloc[2]
+
+
+def test_a_disperser_the_random_walk_explains_becomes_nomad_with_the_reason():
+    residency = pd.DataFrame({"animal_id": ["a", "b", "c"], "pattern": ["disperser", "disperser", "migrant"],
+                              "pattern_reason": ["disperser: lowest AIC"] * 3})
+    nulls = pd.DataFrame({"animal_id": ["a", "b", "c"], "null_model": ["crw"] * 3,
+                          "verdict": ["consistent", "farther", "consistent"]})
+    motion = pd.DataFrame({"animal_id": ["a", "b", "c"], "model": ["brownian", "ctcrw", "ou"], "best": True})
+    out = finalise_residency(residency, nulls, motion)
+    # a: consistent + unbounded best model -> nomad; b: farther than the null -> kept; c: range-resident
+    # best model (its displacement could be within a range) -> kept.
+    assert out["pattern"].tolist() == ["nomad", "disperser", "migrant"]
+    assert "consistent with the crw" in out["pattern_reason"].iloc[0]
+
+
+def _random_walk(seed, n=521, step_sd_m=1500.0):
+    # Diffusive 2-D Gaussian random walk, 6-hourly fixes for 130 days (the case of issue 14).
+    rng = np.random.default_rng(seed)
+    xy = np.vstack([[0.0, 0.0], rng.normal(0, step_sd_m, (n - 1, 2)).cumsum(axis=0)])
+    return fixes_from_xy(xy[:, 0], xy[:, 1], np.arange(n) * 0.25, animal_id=f"w{seed}")
+
+
+@pytest.mark.slow
+def test_diffusive_random_walks_are_never_called_dispersers():
+    # Issue 14: 12 diffusive random walks used to be classed 7 disperser / 4 nomad / 1 resident. A random walk
+    # never settles, so no two-range class may survive the settled-range guard (the dispersers and migrants
+    # above, simulated with settled ranges, are still recovered: the guard is two-sided in effect).
+    patterns = [residency_animal(_random_walk(seed), Config())[0]["pattern"] for seed in range(300, 312)]
+    assert not set(patterns) & {"disperser", "migrant", "mixed_migrant"}, patterns
+
+
+def test_random_walk_spread_is_one_for_brownian_motion_and_small_for_a_settled_range():
+    # Brownian motion: the mean squared deviation from the time average over a window L is k L / 6 for a 2-D
+    # step rate k (Karhunen-Loeve eigenvalues of the demeaned Brownian bridge; common practice, no source).
+    rng = np.random.default_rng(9)
+    t = np.arange(2001) / 24.0
+    qs = []
+    for _ in range(200):
+        xy = np.vstack([[0, 0], rng.normal(0, 100.0, (2000, 2)).cumsum(axis=0)])
+        qs.append(random_walk_spread(t, xy[:, 0], xy[:, 1], np.ones(t.size, bool)))
+    assert 0.9 < np.mean(qs) < 1.1
+    # A settled Ornstein-Uhlenbeck range (tau 1 day, window 80 days): about 3 tau / L (dt << tau).
+    track = shifted_range_track(lambda s: np.zeros_like(s), 80, 1, 1000, 1.0, rng)
+    days = (track["time"] - track["time"].iloc[0]).dt.total_seconds().to_numpy() / 86400
+    q = random_walk_spread(days, track["x_m"].to_numpy(), track["y_m"].to_numpy(), np.ones(len(days), bool))
+    assert 0.5 * 3 / 80 < q < 2 * 3 / 80

@@ -14,7 +14,7 @@ from roamstat.io.read import READ_REASONS
 from roamstat.models.powerlaw_tail import PowerLaw, TruncatedPowerLaw
 from roamstat.models.steps import FAMILIES, FULL_RANGE
 from roamstat.models.turns import TURN_FAMILIES
-from roamstat.ranges.estimate import RANGE_METHODS, RANGES
+from roamstat.ranges.estimate import MODEL_RANGES, RANGE_METHODS, RANGES
 from roamstat.registry import NULLS, UNBOUNDED_WALK_NULL
 from roamstat.report.text import methods_html
 from roamstat.screen import REASONS
@@ -77,7 +77,7 @@ def test_ranges_table_lists_the_range_registry():
     rows = table_rows("ranges.md", "method")
     documented = {code(r[0]): tuple(int(v) for v in r[1].split(",")) for r in rows}
     assert documented == {name: m.levels for name, m in RANGE_METHODS.items()}, "docs/ranges.md, Methods table"
-    assert RANGES == tuple((name, level) for name, levels in documented.items() for level in levels)
+    assert RANGES + MODEL_RANGES == tuple((name, level) for name, levels in documented.items() for level in levels)
 
 
 def test_reason_code_table_lists_screen_and_reader_codes():

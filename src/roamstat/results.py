@@ -31,4 +31,4 @@ class AnimalResult:
     fitted: AnimalFits | None = None  # for the report's density overlays
     null_curves: dict[str, dict] = field(default_factory=dict)
     residency_curve: dict = field(default_factory=dict)
-    range_extras: dict = field(default_factory=dict)
+    range_extras: object = None  # ranges.RangeExtras (a plain dict is also read by the report)

@@ -14,11 +14,13 @@ resident    A (1 - exp(-t / tau))                                        2
 disperser   d / (1 + exp((theta - t) / phi))                             3
 migrant     d / (1 + exp((theta1 - t) / phi1))
             - d / (1 + exp((theta2 - t) / phi2)),  theta2 > theta1       5
+mixed       d1 / (1 + exp((theta1 - t) / phi1))
+_migrant    - d2 / (1 + exp((theta2 - t) / phi2)),  0 <= d2 <= d1        6
 nomad       beta t                                                       1
 =========== ============================================================ ===
 
-The sigmoid (disperser, migrant), constant and linear forms are those of
-Bunnefeld et al. (2011); the asymptotic home-range form is that of Börger &
+The sigmoid (disperser, migrant, mixed migrant: a return only part of the
+way), constant and linear forms are those of Bunnefeld et al. (2011); the asymptotic home-range form is that of Börger &
 Fryxell (2012) (both from memory of the papers).  NSD is in km² and time in
 days since the first fix; theta is the midpoint of a transition and phi its
 time scale (the NSD goes from 12 % to 88 % of the way in 4 phi).
@@ -50,8 +52,9 @@ from scipy.special import expit
 from roamstat.registry import UNBOUNDED_WALK_NULL
 from roamstat.rows import located
 
-MODELS = ("sedentary", "resident", "disperser", "migrant", "nomad")
-N_PARAMS = {"sedentary": 1, "resident": 2, "disperser": 3, "migrant": 5, "nomad": 1}
+MODELS = ("sedentary", "resident", "disperser", "migrant", "mixed_migrant", "nomad")
+N_PARAMS = {"sedentary": 1, "resident": 2, "disperser": 3, "migrant": 5, "mixed_migrant": 6, "nomad": 1}
+TWO_RANGE = ("disperser", "migrant", "mixed_migrant")  # patterns that claim a move to another range
 MIN_FIXES = 20  # below this the five curves cannot be told apart (judgement, no source)
 MAX_FIT_POINTS = 5000  # longer series are thinned evenly in time for the fits (speed)
 EXPLORE_POINTS = 400  # starting values are screened on this many points of longer series
@@ -59,6 +62,11 @@ EXPLORE_NFEV = 8  # function evaluations a start gets before the best are polish
 POLISHED_STARTS = 3
 MAX_CURVE_POINTS = 1500  # points handed to the report figure
 WEAK_DELTA = 2.0  # delta AIC below which support is weak (Burnham & Anderson 2002)
+# Fewer effective fixes make the area CI span more than a factor ~2.5 (chi-square, 2 n_eff dof) (judgement).
+MIN_N_EFFECTIVE = 10.0
+# A range part must spread less than this share of a random walk's spread over the same time: about a stay
+# of 10 attraction times (3 tau / L); a random walk's window falls below it with probability of a few % (judgement).
+SETTLED_MAX = 0.3
 DAY_S = 86400.0
 
 
@@ -89,6 +97,9 @@ def predict(model: str, p, t):
     if model == "migrant":
         d, theta1, phi1, theta2, phi2 = p
         return d * (_sigmoid(t, theta1, phi1) - _sigmoid(t, theta2, phi2))
+    if model == "mixed_migrant":
+        d1, theta1, phi1, theta2, phi2, d2 = p
+        return d1 * _sigmoid(t, theta1, phi1) - d2 * _sigmoid(t, theta2, phi2)
     if model == "nomad":
         return p[0] * t
     raise ValueError(f"unknown residency model {model!r}")
@@ -113,6 +124,11 @@ def _starts_and_bounds(model: str, t, y, dt_days):
         lo, hi = [0.0, 0.0, phi_lo, 0.0, phi_lo], [10.0 * top, span - _gap_lo(span, dt_days), span / 2.0, 1.0, span / 2.0]
         starts = [[high, span * a, span * g, u, span * g]
                   for a in (0.1, 0.25, 0.4) for u in (0.2, 0.5, 0.8) for g in (0.01, 0.04)]
+    elif model == "mixed_migrant":
+        # As the migrant, plus r = d2 / d1 in [0, 1]: the share of the way back.
+        starts, (lo, hi) = _starts_and_bounds("migrant", t, y, dt_days)
+        starts = [np.append(s, r) for s in starts for r in (0.3, 0.7)]
+        lo, hi = np.append(lo, 0.0), np.append(hi, 1.0)
     else:
         raise ValueError(model)
     starts = [np.clip(np.asarray(s, float), np.asarray(lo) + 1e-12, np.asarray(hi) - 1e-12) for s in starts]
@@ -125,12 +141,13 @@ def _gap_lo(span: float, dt_days: float) -> float:
 
 
 def _natural(model: str, q, span: float, dt_days: float):
-    """Search vector -> parameters of :func:`predict` (only the migrant differs)."""
-    if model != "migrant":
+    """Search vector -> parameters of :func:`predict` (only the migrants differ)."""
+    if model not in ("migrant", "mixed_migrant"):
         return q
-    d, theta1, phi1, u, phi2 = q
+    d, theta1, phi1, u, phi2 = q[:5]
     gap = _gap_lo(span, dt_days)
-    return np.array([d, theta1, phi1, theta1 + gap + u * max(span - theta1 - gap, 0.0), phi2])
+    natural = [d, theta1, phi1, theta1 + gap + u * max(span - theta1 - gap, 0.0), phi2]
+    return np.array(natural if model == "migrant" else natural + [q[5] * d])
 
 
 def fit_model(model: str, t, y, dt_days: float):
@@ -180,36 +197,109 @@ def aic_from_rss(rss: float, n: int, k: int) -> float:
 
 
 def ranges_apart(model: str, p, t, x, y):
-    """Whether a disperser or migrant fit describes two distinct ranges.
+    """Whether a disperser, migrant or mixed-migrant fit describes distinct ranges.
 
     Autocorrelated wandering inside one range can be fitted by a sigmoid (the
     residuals of NSD are far from independent, so AIC alone over-rewards the
     flexible curves).  A fit counts only when the centroids of the fixes
     before departure and at the far end (more than 2 phi from each transition
     midpoint, i.e. past 88 % of the transition) are farther apart than the sum
-    of the two ranges' RMS radii, and a migrant's return must be followed by
-    at least 5 fixes (judgement, no source).
+    of the two ranges' RMS radii; a migrant's return must be followed by at
+    least 5 fixes, and a mixed migrant's final range must also be apart, in
+    the same sense, from both the start and the far range (else it is a
+    migrant or a disperser) (judgement, no source).
 
     Returns
     -------
     (bool, str)
         Verdict and a short reason for the note.
     """
-    if model == "disperser":
-        start, far = t < p[1] - 2 * p[2], t > p[1] + 2 * p[2]
-    else:
-        start, far = t < p[1] - 2 * p[2], (t > p[1] + 2 * p[2]) & (t < p[3] - 2 * p[4])
-        if np.sum(t > p[3] + 2 * p[4]) < 5:
+    start, far = t < p[1] - 2 * p[2], t > p[1] + 2 * p[2]
+    parts = {"start": start, "far range": far}
+    if model != "disperser":
+        parts["far range"] = far & (t < p[3] - 2 * p[4])
+        parts["return range"] = t > p[3] + 2 * p[4]
+        if parts["return range"].sum() < 5:
             return False, "fewer than 5 fixes after the fitted return"
-    if start.sum() < 5 or far.sum() < 5:
+    if start.sum() < 5 or parts["far range"].sum() < 5:
         return False, "fewer than 5 fixes before departure or at the far range"
-    centre = [(x[m].mean(), y[m].mean()) for m in (start, far)]
-    radius = [math.sqrt(np.mean((x[m] - cx) ** 2 + (y[m] - cy) ** 2)) for m, (cx, cy) in zip((start, far), centre)]
+    for name, mask in parts.items():
+        spread = random_walk_spread(t, x, y, mask)
+        if not spread < SETTLED_MAX:
+            return False, (f"the {name} is not settled (its spread is {spread:.2f} of what a random walk with the "
+                           f"track's own step rate would reach in that time)")
+    pairs = [("start", "far range")]
+    if model == "mixed_migrant":
+        pairs += [("start", "return range"), ("far range", "return range")]
+    for a, b in pairs:
+        apart, why = _apart(x, y, parts[a], parts[b])
+        if not apart:
+            return False, f"{a} and {b} overlap ({why})"
+    return True, ""
+
+
+def random_walk_spread(t, x, y, part) -> float:
+    """Spread of the fixes in ``part`` relative to a random walk's over the same time.
+
+    q = r² / (k L / 6), with r² the mean squared distance of the part's fixes
+    from their centroid, L the part's duration and k the mean of
+    |step|² / dt over the whole track: a 2-D Brownian motion of that step
+    rate has expected r² = k L / 6 over a window of length L (the mean
+    squared deviation of Brownian motion from its time average is a sixth of
+    its variance rate times L), so q is about 1 for a random walk, however
+    long, and about 3 tau / L for a range of attraction time tau << L
+    (derived here; the idea of comparing spread with diffusion is Turchin's
+    1998 NSD argument).
+    """
+    steps = np.diff(t)
+    ok = steps > 0
+    rate = float(np.mean((np.diff(x)[ok] ** 2 + np.diff(y)[ok] ** 2) / steps[ok])) if ok.any() else math.nan
+    duration = float(t[part].max() - t[part].min())
+    r2 = float(np.mean((x[part] - x[part].mean()) ** 2 + (y[part] - y[part].mean()) ** 2))
+    return r2 / (rate * duration / 6.0) if rate > 0 and duration > 0 else math.nan
+
+
+def _apart(x, y, first, second):
+    centre = [(x[m].mean(), y[m].mean()) for m in (first, second)]
+    radius = [math.sqrt(np.mean((x[m] - cx) ** 2 + (y[m] - cy) ** 2)) for m, (cx, cy) in zip((first, second), centre)]
     separation = math.hypot(centre[1][0] - centre[0][0], centre[1][1] - centre[0][1])
-    if separation > sum(radius):
-        return True, ""
-    return False, (f"ranges overlap (centroids {separation / 1000:.2f} km apart, RMS radii "
-                   f"{radius[0] / 1000:.2f} and {radius[1] / 1000:.2f} km)")
+    return separation > sum(radius), (f"centroids {separation / 1000:.2f} km apart, RMS radii "
+                                      f"{radius[0] / 1000:.2f} and {radius[1] / 1000:.2f} km")
+
+
+def choose_pattern(aics: dict, fits: dict, t, x, y):
+    """The residency class and the reason for it: the one place the NSD class is decided.
+
+    The class is the curve of lowest AIC among those that pass
+    :func:`ranges_apart`.  The deployment stage may still overrule a
+    two-range class (:func:`finalise_residency`).
+
+    Returns
+    -------
+    pattern : str
+    reason : str
+        One sentence: what won and by how much.
+    notes : list of str
+        Curves set aside and weak support.
+    delta : float
+        Runner-up AIC minus the chosen one's (NaN with one candidate).
+    """
+    notes, eligible = [], dict(aics)
+    for model in TWO_RANGE:
+        if model in fits:
+            apart, why = ranges_apart(model, fits[model], t, x, y)
+            if not apart:
+                del eligible[model]
+                notes.append(f"{model} set aside: {why}")
+    ranked = sorted(eligible, key=eligible.get)
+    chosen, delta = ranked[0], math.nan
+    reason = f"{chosen}: lowest AIC of the NSD curves"
+    if len(ranked) > 1:
+        delta = aics[ranked[1]] - aics[chosen]
+        reason += f" ({delta:.1f} below {ranked[1]})"
+        if delta < WEAK_DELTA:
+            notes.append(f"weak support: {ranked[1]} is within {WEAK_DELTA:g} AIC units")
+    return chosen, reason, notes, delta
 
 
 # --- one animal ---------------------------------------------------------------------
@@ -227,8 +317,9 @@ def residency_animal(fixes_a: pd.DataFrame, cfg=None):
     Returns
     -------
     row : dict
-        ``pattern`` (sedentary, resident, disperser, migrant, nomad or
-        undetermined), ``n_fixes``, ``aic_<model>`` for each model,
+        ``pattern`` (sedentary, resident, disperser, migrant,
+        mixed_migrant, nomad or undetermined), ``pattern_reason`` (one
+        sentence: why), ``n_fixes``, ``aic_<model>`` for each model,
         ``delta_aic`` (runner-up minus chosen), ``params`` (JSON of the
         chosen curve: asymptote in km², departure and return times as ISO
         8601 with offset) and ``note``.
@@ -242,15 +333,15 @@ def residency_animal(fixes_a: pd.DataFrame, cfg=None):
     Bunnefeld, N. et al. (2011). J. Anim. Ecol. 80, 466-476.
     """
     obs = located(fixes_a)
-    row = {"pattern": "undetermined", "n_fixes": int(len(obs))}
+    row = {"pattern": "undetermined", "pattern_reason": "", "n_fixes": int(len(obs))}
     row.update({f"aic_{m}": math.nan for m in MODELS})
     row.update({"delta_aic": math.nan, "params": "{}", "note": ""})
     if len(obs) < MIN_FIXES:
-        row["note"] = f"only {len(obs)} observed fixes; residency needs at least {MIN_FIXES}"
+        row["note"] = row["pattern_reason"] = f"only {len(obs)} observed fixes; residency needs at least {MIN_FIXES}"
         return row, {}
     t, y = nsd_series(obs)
     if t[-1] <= 0:
-        row["note"] = "all fixes share one time; residency needs a track through time"
+        row["note"] = row["pattern_reason"] = "all fixes share one time; residency needs a track through time"
         return row, {}
     notes = []
     fit_idx = _even_index(len(t), MAX_FIT_POINTS)
@@ -259,7 +350,7 @@ def residency_animal(fixes_a: pd.DataFrame, cfg=None):
     tf, yf = t[fit_idx], y[fit_idx]
     if float(np.max(yf)) == 0.0:
         row.update(pattern="sedentary", params=json.dumps({"nsd_km2": 0.0}),
-                   note="every fix at the first fix's position")
+                   note="every fix at the first fix's position", pattern_reason="every fix at the first fix's position")
         return row, {}
     dt_days = float(np.median(np.diff(tf))) if len(tf) > 1 else 0.0
     floor = 1e-12 * float(np.sum(yf ** 2))  # keeps ln(RSS) finite for a perfect fit
@@ -274,23 +365,13 @@ def residency_animal(fixes_a: pd.DataFrame, cfg=None):
         row[f"aic_{model}"] = aics[model]
     if not aics:
         row["note"] = "; ".join(notes + ["no model converged"])
+        row["pattern_reason"] = "no NSD curve converged"
         return row, {}
     xf = obs["x_m"].to_numpy(float)[fit_idx]
     yf_m = obs["y_m"].to_numpy(float)[fit_idx]
-    eligible = dict(aics)
-    for model in ("disperser", "migrant"):
-        if model in fits:
-            apart, why = ranges_apart(model, fits[model], tf, xf, yf_m)
-            if not apart:
-                del eligible[model]
-                notes.append(f"{model} set aside: {why}")
-    ranked = sorted(eligible, key=eligible.get)
-    chosen = ranked[0]
-    row["pattern"] = chosen
-    if len(ranked) > 1:
-        row["delta_aic"] = aics[ranked[1]] - aics[chosen]
-        if row["delta_aic"] < WEAK_DELTA:
-            notes.append(f"weak support: {ranked[1]} is within {WEAK_DELTA:g} AIC units")
+    chosen, reason, choice_notes, row["delta_aic"] = choose_pattern(aics, fits, tf, xf, yf_m)
+    notes += choice_notes
+    row.update(pattern=chosen, pattern_reason=reason)
     params, param_notes = describe_params(chosen, fits[chosen], obs["time"].iloc[0], t[-1])
     row["params"] = json.dumps(params, ensure_ascii=False)
     row["note"] = "; ".join(notes + param_notes)
@@ -327,21 +408,40 @@ def describe_params(model: str, p, t0: pd.Timestamp, span_days: float):
     if model == "disperser":
         return {"asymptote_km2": float(p[0]), "distance_km": math.sqrt(float(p[0])),
                 "departure_time": _iso(t0, p[1]), "departure_scale_days": float(p[2])}, notes
-    d, theta1, phi1, theta2, phi2 = (float(v) for v in p)
-    return {"asymptote_km2": d, "distance_km": math.sqrt(d),
-            "departure_time": _iso(t0, theta1), "departure_scale_days": phi1,
-            "return_time": _iso(t0, theta2), "return_scale_days": phi2}, notes
+    d, theta1, phi1, theta2, phi2 = (float(v) for v in p[:5])
+    out = {"asymptote_km2": d, "distance_km": math.sqrt(d),
+           "departure_time": _iso(t0, theta1), "departure_scale_days": phi1,
+           "return_time": _iso(t0, theta2), "return_scale_days": phi2}
+    if model == "mixed_migrant":
+        out["final_nsd_km2"] = d - float(p[5])
+        out["return_share"] = float(p[5]) / d if d > 0 else math.nan
+    return out, notes
 
 
 # --- the deployment ----------------------------------------------------------------
 
-def finalise_residency(residency: pd.DataFrame, null_tests: pd.DataFrame | None = None) -> pd.DataFrame:
-    """Add ``range_study_candidate`` to the residency table.
+RANDOM_WALK_NULLS = ("ctcrw", UNBOUNDED_WALK_NULL)  # the unbounded null consulted, first present wins
 
-    An animal is a candidate for a home-range study when its pattern is
-    resident or sedentary and, where the null-model table exists, its verdict
-    under the correlated-random-walk null is not "farther" (net displacement
-    larger than a random walk of its own steps and turns would give).
+
+def finalise_residency(residency: pd.DataFrame, null_tests: pd.DataFrame | None = None,
+                       motion: pd.DataFrame | None = None, ranges: pd.DataFrame | None = None) -> pd.DataFrame:
+    """Overrule two-range classes a random walk explains; add the range-study candidates.
+
+    A disperser, migrant or mixed migrant becomes ``nomad`` when the
+    unbounded random-walk null (``ctcrw`` if run, else ``crw``) finds the
+    net displacement ``consistent`` with it and the best motion model is
+    not range-resident: such a track gives no evidence of settling anywhere.
+    Both are needed: a true disperser's displacement is often within a
+    random walk's reach, so the verdict alone has little power (without
+    motion models nothing is overruled; the NSD fit's own guard,
+    :func:`ranges_apart`, already asks every range to be settled).
+
+    An animal is a candidate for a home-range study when (1) its pattern is
+    resident or sedentary, (2) its verdict under that null is not
+    ``farther``, (3) where motion models were fitted, the best one is
+    range-resident, and (4) where ranges were estimated, its effective sample
+    size for area is at least ``MIN_N_EFFECTIVE``.  ``range_study_note``
+    names every condition that failed.
 
     Parameters
     ----------
@@ -349,20 +449,76 @@ def finalise_residency(residency: pd.DataFrame, null_tests: pd.DataFrame | None 
         One row per animal from :func:`residency_animal` with ``animal_id``.
     null_tests : pandas.DataFrame or None
         The null-model table (``animal_id, null_model, verdict``), if run.
+    motion : pandas.DataFrame or None
+        motion_models.csv (``animal_id, model, best``), if fitted.
+    ranges : pandas.DataFrame or None
+        ranges.csv (``animal_id, n_effective``), if estimated.
 
     Returns
     -------
     pandas.DataFrame
-        A copy with ``range_study_candidate`` (bool).
+        A copy with ``pattern``/``pattern_reason`` possibly overruled and
+        ``range_study_candidate`` (bool), ``range_study_note``.
     """
+    from roamstat.motion import RANGE_RESIDENT  # the registry's one list (imported late: numba is slow to load)
+
     out = residency.copy()
+    if "pattern_reason" not in out.columns:
+        out["pattern_reason"] = ""
     if out.empty:
         out["range_study_candidate"] = pd.Series(dtype=bool)
+        out["range_study_note"] = pd.Series(dtype=str)
         return out
-    candidate = out["pattern"].isin(["resident", "sedentary"])
-    if null_tests is not None and len(null_tests) and {"animal_id", "null_model", "verdict"} <= set(null_tests.columns):
-        walk = null_tests[null_tests["null_model"].astype(str) == UNBOUNDED_WALK_NULL]
-        farther = set(walk.loc[walk["verdict"].astype(str) == "farther", "animal_id"].astype(str))
-        candidate &= ~out["animal_id"].astype(str).isin(farther)
-    out["range_study_candidate"] = candidate.astype(bool)
+    ids = out["animal_id"].astype(str)
+    verdicts, null_name = _random_walk_verdicts(null_tests)
+    best = _best_motion(motion)
+    n_eff = _n_effective(ranges)
+    explained = ids.map(verdicts).eq("consistent") & out["pattern"].isin(TWO_RANGE)
+    explained &= ids.map(best or {}).notna() & ~ids.map(best or {}).isin(sorted(RANGE_RESIDENT))
+    for i in np.flatnonzero(explained.to_numpy()):
+        old = out["pattern"].iat[i]
+        out.iat[i, out.columns.get_loc("pattern")] = "nomad"
+        out.iat[i, out.columns.get_loc("pattern_reason")] = (
+            f"nomad: the NSD curve suggested {old}, but the net displacement is consistent with the {null_name} "
+            f"random-walk null and the best motion model ({best[ids.iat[i]]}) has no home range")
+    failed = [[] for _ in range(len(out))]
+    for i, (animal, pattern) in enumerate(zip(ids, out["pattern"].astype(str))):
+        if pattern not in ("resident", "sedentary"):
+            failed[i].append(f"pattern is {pattern}, not resident or sedentary")
+        if verdicts.get(animal) == "farther":
+            failed[i].append(f"farther than the {null_name} null")
+        if best is not None and best.get(animal) not in RANGE_RESIDENT:
+            failed[i].append(f"best motion model {best.get(animal) or 'missing'} is not range-resident")
+        if n_eff is not None and not n_eff.get(animal, 0.0) >= MIN_N_EFFECTIVE:
+            failed[i].append(f"effective sample size {n_eff.get(animal, math.nan):.1f} below {MIN_N_EFFECTIVE:g}")
+    out["range_study_candidate"] = [not f for f in failed]
+    out["range_study_note"] = ["; ".join(f) for f in failed]
     return out
+
+
+def _random_walk_verdicts(null_tests):
+    """({animal_id: verdict} under the first unbounded null present, its name)."""
+    if null_tests is None or not len(null_tests) or not {"animal_id", "null_model", "verdict"} <= set(null_tests.columns):
+        return {}, ""
+    names = null_tests["null_model"].astype(str)
+    for name in RANDOM_WALK_NULLS:
+        rows = null_tests[names == name]
+        if len(rows):
+            return dict(zip(rows["animal_id"].astype(str), rows["verdict"].astype(str))), name
+    return {}, ""
+
+
+def _best_motion(motion):
+    """{animal_id: best motion model}, or None when no motion table was made."""
+    if motion is None or not {"animal_id", "model", "best"} <= set(motion.columns):
+        return None
+    rows = motion[motion["best"].fillna(False).astype(bool)]
+    return dict(zip(rows["animal_id"].astype(str), rows["model"].astype(str)))
+
+
+def _n_effective(ranges):
+    """{animal_id: n_effective}, or None when no range table with it was made."""
+    if ranges is None or not {"animal_id", "n_effective"} <= set(ranges.columns):
+        return None
+    known = ranges.dropna(subset=["n_effective"])
+    return dict(zip(known["animal_id"].astype(str), known["n_effective"].astype(float)))

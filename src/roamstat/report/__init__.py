@@ -128,9 +128,15 @@ def _rejected_coordinates(tables: dict) -> pd.DataFrame | None:
     return None
 
 
+def _range_extras(result) -> dict:
+    """The ranges stage's hand-off (``ranges.RangeExtras``, or a plain dict) as a dict."""
+    extras = result.range_extras or {}
+    return extras if isinstance(extras, dict) else vars(extras)
+
+
 def _draw_animal(result, fixes_a, rejected_a, masked: bool) -> list:
     """[(kind, png bytes or a note why the figure is missing)] for one animal."""
-    extras = result.range_extras or {}
+    extras = _range_extras(result)
     track = curves.xy_table(fixes_a) if fixes_a is not None else curves.xy_table(extras.get("track_xy"))
     rejected = curves.xy_table(rejected_a) if rejected_a is not None else curves.xy_table(extras.get("rejected_xy"))
     jobs = []
@@ -210,7 +216,7 @@ def _animal_section(animal_id: str, name: str, result, tables: dict, written: li
         parts.append(f"<details><summary>full id</summary><code>{esc(animal_id)}</code></details>")
     notes = [result.fitted.note if result and result.fitted else ""]
     notes += [str(result.residency.get("note", ""))] if result and isinstance(result.residency, dict) else []
-    notes += [str((result.range_extras or {}).get("note", ""))] if result else []
+    notes += [str(_range_extras(result).get("note", ""))] if result else []
     for note in notes:
         if note and note.strip():
             parts.append(f'<p class="note">{esc(note)}</p>')
