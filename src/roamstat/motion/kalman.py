@@ -45,7 +45,7 @@ MOVEMENT_PARAMS = {
     "ctcrw": ("diffusion_m2_s", "tau_velocity_s"),
     "ou_ctcrw": ("sigma_m", "tau_position_s", "tau_velocity_s"),
 }
-# below this dt/tau_v the ctcrw position variance uses its Taylor series (the closed form
+# below this dt/tau_v the ctcrw position variances use their Taylor series (the closed form
 # loses digits to cancellation there)
 _SERIES_X = 1e-3
 
@@ -164,8 +164,11 @@ def semivariance(name: str, p: dict, lag_s) -> np.ndarray:
     if name == "brownian":
         return p["diffusion_m2_s"] * lag
     if name == "ctcrw":
+        # D [lag - tau (1 - e^{-lag/tau})]: velocity started from its stationary law
         tau = p["tau_velocity_s"]
-        return 0.5 * _ctcrw_position_var(p["diffusion_m2_s"], tau, lag)
+        x = lag / tau
+        small = x**2 / 2.0 - x**3 / 6.0 + x**4 / 24.0
+        return p["diffusion_m2_s"] * tau * np.where(x < _SERIES_X, small, x + np.expm1(-x))
     return p["sigma_m"] ** 2 * (1.0 - position_acf(name, p, lag))
 
 
