@@ -146,10 +146,11 @@ def transition(name: str, p: dict, dt: np.ndarray) -> tuple[np.ndarray, np.ndarr
         Q[:, 1, 1] = -velocity_var * np.expm1(-2.0 * dt / tau)
     elif name == "ou_ctcrw":
         F = _ouf_propagator(p, dt)
-        S = stationary_cov(name, p)
-        Q = S - np.einsum("nij,jk,nlk->nil", F, S, F)  # stationarity: Q = S - F S F'
-        Q[:, 0, 0] = np.maximum(Q[:, 0, 0], 0.0)
-        Q[:, 1, 1] = np.maximum(Q[:, 1, 1], 0.0)
+        # stationarity: Q = S - F S F' with S = diag(s0, s1)
+        s0, s1 = np.diag(stationary_cov(name, p))
+        Q[:, 0, 0] = np.maximum(s0 - (F[:, 0, 0] ** 2 * s0 + F[:, 0, 1] ** 2 * s1), 0.0)
+        Q[:, 0, 1] = Q[:, 1, 0] = -(F[:, 0, 0] * F[:, 1, 0] * s0 + F[:, 0, 1] * F[:, 1, 1] * s1)
+        Q[:, 1, 1] = np.maximum(s1 - (F[:, 1, 0] ** 2 * s0 + F[:, 1, 1] ** 2 * s1), 0.0)
     else:
         check_model(name)
     return F, Q

@@ -8,7 +8,7 @@ from .fit import best_fit
 from .kalman import PARAM_KEYS
 
 TABLE_COLUMNS = ("model", "n_fixes", "n_params", "loglik", "aicc", "delta_aicc", "best",
-                 *PARAM_KEYS, "error_source", *(f"{key}_se" for key in PARAM_KEYS))
+                 *PARAM_KEYS, "error_source", *(f"{key}_se" for key in PARAM_KEYS), "range_crossings")
 
 
 def motion_table(fits) -> pd.DataFrame:
@@ -16,7 +16,9 @@ def motion_table(fits) -> pd.DataFrame:
 
     Parameters a model does not have are NaN (empty in the CSV). ``error_sd_m`` is the estimated
     SD (with its SE) when ``error_source`` is ``estimated``, else the median of the known
-    per-fix SDs (no SE).
+    per-fix SDs (no SE). ``delta_aicc`` is relative to the best model (``best``), which is the
+    lowest AICc among eligible fits (see ``fit.best_fit``), so it can be negative for a
+    range-resident fit whose range is not resolved (``range_crossings`` below the minimum).
     """
     best = best_fit(fits)
     rows = []
@@ -27,6 +29,7 @@ def motion_table(fits) -> pd.DataFrame:
                "best": fit is best, **{key: fit.params[key] for key in PARAM_KEYS},
                "error_source": fit.error_source}
         row.update({f"{key}_se": fit.se[key] for key in PARAM_KEYS})
+        row["range_crossings"] = fit.range_crossings
         rows.append(row)
     return pd.DataFrame(rows, columns=list(TABLE_COLUMNS))
 
