@@ -69,3 +69,35 @@ def test_critically_damped_ou_ctcrw_is_continuous():
     lags = np.array([10.0, 500.0, 3000.0])
     fit = make_fit("ou_ctcrw", params("ou_ctcrw", sigma_m=1.0, tau_position_s=tau, tau_velocity_s=tau))
     np.testing.assert_allclose(fit.position_acf(lags), (1 + lags / tau) * np.exp(-lags / tau), rtol=1e-9)
+
+
+def test_effective_n_area_matches_the_spread_of_simulated_variances():
+    # Var of the sample variance of N independent normals is 2 sigma^4 / N (textbook); an OU
+    # track's per-axis sample variance, from our own AR(1) generator, should vary like N_area's.
+    from roamstat.motion import effective_n_area
+
+    rng = np.random.default_rng(5)
+    sigma, tau, n_t, reps = 1.0, 100.0, 2000, 3000
+    t = np.linspace(0.0, 50.0 * tau, n_t)
+    a = np.exp(-np.diff(t)[0] / tau)
+    x = np.empty((reps, n_t))
+    x[:, 0] = rng.standard_normal(reps)
+    z = rng.standard_normal((reps, n_t)) * np.sqrt(1.0 - a * a)
+    for i in range(1, n_t):
+        x[:, i] = a * x[:, i - 1] + z[:, i]
+    spread = np.var(x.var(axis=1, ddof=0))
+    n_area = effective_n_area(make_fit("ou", params("ou", sigma_m=sigma, tau_position_s=tau)), t[-1])
+    assert n_area == pytest.approx(50.0, rel=1e-6)
+    # a fitted mean costs a few degrees of freedom at N = 50: 20 % band both ways
+    assert 0.8 < spread / (2.0 * sigma**4 / n_area) < 1.2
+
+
+def test_effective_n_area_ou_ctcrw_limits():
+    from roamstat.motion import effective_n_area
+
+    # tau_v -> 0 gives the ou value T/tau_p; tau_p = tau_v: 2 int ((1 + u) e^-u)^2 tau du = 2.5 tau
+    near_ou = make_fit("ou_ctcrw", params("ou_ctcrw", sigma_m=1.0, tau_position_s=100.0, tau_velocity_s=1e-4))
+    assert effective_n_area(near_ou, 1e4) == pytest.approx(100.0, rel=1e-4)
+    critical = make_fit("ou_ctcrw", params("ou_ctcrw", sigma_m=1.0, tau_position_s=100.0, tau_velocity_s=100.0))
+    assert effective_n_area(critical, 1e4) == pytest.approx(1e4 / 250.0, rel=1e-6)
+    assert np.isnan(effective_n_area(make_fit("ctcrw", CASES["ctcrw"]), 1e4))

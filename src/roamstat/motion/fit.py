@@ -98,7 +98,7 @@ def _start_scales(track: Track) -> dict:
 
 
 # multipliers of the data scale tried as starting values
-_START_GRID = {"diffusion_m2_s": (1.0,), "sigma_m": (1.0,), "tau_position_s": (0.3, 1.0, 3.0),
+_START_GRID = {"diffusion_m2_s": (1.0,), "sigma_m": (1.0,), "tau_position_s": (1.0, 4.0),
                "tau_velocity_s": (0.1, 1.0, 10.0), "error_sd_m": (0.03, 0.3, 1.0)}
 
 

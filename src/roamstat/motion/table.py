@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+from scipy.integrate import quad
 
 from .fit import best_fit
 from .kalman import PARAM_KEYS
@@ -35,15 +36,17 @@ def motion_table(fits) -> pd.DataFrame:
 
 
 def effective_n_area(fit, duration_s: float) -> float:
-    """Effective number of independent fixes for a range estimate over ``duration_s``.
+    """Effective number of independent fixes for the spread (area) of a range-resident track.
 
-    For a range-resident model, the duration divided by the position autocorrelation time
-    (tau_p for ou; tau_p + tau_v for ou_ctcrw, the integral of its ACF); NaN for unbounded
-    models, which have no range (Fleming et al. 2015, Ecology 96, 1182-1188).
+    N = duration / (2 integral_0^inf rho(t)^2 dt), rho the position autocorrelation: the
+    variance of the time-averaged squared deviation of a stationary Gaussian process over a
+    long duration T is 2 sigma^4 (2 integral rho^2)/T, i.e. that of N independent draws
+    (e.g. Priestley 1981, Spectral Analysis and Time Series, sec. 5.3). For ou this is T/tau_p,
+    the range-crossing count of Fleming et al. (2015, Ecology 96, 1182-1188). NaN for
+    unbounded models, which have no range.
     """
     if not fit.range_resident:
         return float("nan")
-    tau = fit.params["tau_position_s"]
-    if fit.name == "ou_ctcrw":
-        tau = tau + fit.params["tau_velocity_s"]
-    return float(duration_s / tau)
+    scale = fit.params["tau_position_s"] + fit.params.get("tau_velocity_s", 0.0) * (fit.name == "ou_ctcrw")
+    integral, _ = quad(lambda t: fit.position_acf(t) ** 2, 0.0, np.inf, epsabs=1e-10 * scale)
+    return float(duration_s / (2.0 * integral))
