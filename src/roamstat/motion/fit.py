@@ -181,6 +181,9 @@ def fit_model(name: str, track: Track, error: LocationError) -> MotionFit:
     if not estimate_error:
         params["error_sd_m"] = float(np.median(np.sqrt(track.error_var)))
     se = _delta_se(name, params, free, cov_log)
+    for key, value, (low, high) in zip(free, theta, bounds):
+        if min(value - low, high - value) < 1e-6:
+            se[key] = np.nan  # on the edge of the search box: the curvature there is no SE
     resident = name in RANGE_RESIDENT
     k = len(free) + (2 if resident else 0)
     centre_xy = tuple(float(v) for v in (mean if resident else track.origin))
