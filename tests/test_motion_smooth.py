@@ -4,7 +4,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from motion_reference import UNBOUNDED, draw, params, position_cov
+from motion_reference import UNBOUNDED, draw, position_cov
 from roamstat.motion import MOTION_MODELS, LocationError, smooth
 from test_motion_simulate import CASES, make_fit
 

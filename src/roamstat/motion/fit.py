@@ -131,7 +131,7 @@ def _delta_se(name: str, params: dict, free: tuple, cov_log: np.ndarray) -> dict
         else:
             continue
         var = grad @ cov_log @ grad
-        se[key] = value * np.sqrt(var) if var >= 0 else np.nan
+        se[key] = float(value * np.sqrt(var)) if var >= 0 else np.nan
     return se
 
 
@@ -165,10 +165,13 @@ def fit_model(name: str, track: Track, error: LocationError) -> MotionFit:
     starts = [centre + np.log(mult) for mult in itertools.product(*(_START_GRID[key] for key in free))]
     best_start = min(starts, key=objective)
     result = minimize(objective, best_start, method="L-BFGS-B", bounds=bounds)
-    theta = result.x
-    p = natural(theta)
-    if name == "ou_ctcrw":  # keep theta in the order of the named parameters for the Hessian
-        theta = np.log([p[key] for key in free])
+    p = natural(result.x)
+    at_edge = {key for key, value, (low, high) in zip(free, result.x, bounds)
+               if min(value - low, high - value) < 1e-6}
+    if name == "ou_ctcrw" and p["tau_position_s"] != np.exp(result.x[free.index("tau_position_s")]):
+        swap = {"tau_position_s": "tau_velocity_s", "tau_velocity_s": "tau_position_s"}
+        at_edge = {swap.get(key, key) for key in at_edge}
+    theta = np.log([p[key] for key in free])  # in the order of the named parameters
     loglik, mean = conditional_loglik(name, p, track)
     try:
         cov_log = np.linalg.inv(_hessian(objective, theta))
@@ -181,9 +184,8 @@ def fit_model(name: str, track: Track, error: LocationError) -> MotionFit:
     if not estimate_error:
         params["error_sd_m"] = float(np.median(np.sqrt(track.error_var)))
     se = _delta_se(name, params, free, cov_log)
-    for key, value, (low, high) in zip(free, theta, bounds):
-        if min(value - low, high - value) < 1e-6:
-            se[key] = np.nan  # on the edge of the search box: the curvature there is no SE
+    for key in at_edge:
+        se[key] = np.nan  # on the edge of the search box: the curvature there is no SE
     resident = name in RANGE_RESIDENT
     k = len(free) + (2 if resident else 0)
     centre_xy = tuple(float(v) for v in (mean if resident else track.origin))
