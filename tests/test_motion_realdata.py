@@ -6,7 +6,8 @@ import numpy as np
 from conftest import realdata
 from roamstat.config import Config
 from roamstat.motion import DEFAULT_CLASS_SD_M, best_fit, fit_motion_models, location_error, smooth
-from roamstat.run import load, observed_fixes
+from roamstat.pipeline import load
+from roamstat.rows import observed as observed_fixes
 
 
 def test_antarctic_animal_uses_class_error_and_smooths_within_it():

@@ -149,7 +149,7 @@ def test_one_tag_per_animal_leaves_ids_alone(tmp_path):
 def test_carnivore_deployments_net_within_path():
     # README of the open dataset: one coyote id is shared by two tags (recorded months apart).
     path = realdata("carnivore_gps_cr_endings.csv")
-    from roamstat.run import load
+    from roamstat.pipeline import load
 
     loaded = load([path], Config())
     summary = loaded.summary.set_index("animal_id")
