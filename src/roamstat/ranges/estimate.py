@@ -12,6 +12,7 @@ from typing import Callable, NamedTuple
 
 import numpy as np
 import pandas as pd
+from shapely.geometry import MultiPolygon
 
 from roamstat.ranges import geojson
 from roamstat.ranges.frames import animal_frame, observed_fixes
@@ -181,6 +182,14 @@ def ranges_animal(fixes_a: pd.DataFrame, cfg=None, rng: np.random.Generator | No
             rows.append(_row(method, level, math.nan, n, None, ratio, math.nan, note, masked))
             continue
         geom, n_used, h = shapes[(method, level)]
+        shown = place(geom)
+        outline = geojson.checked_lonlat(shown, inverse, lon_centre)
+        if outline is None:  # never a table area that its outline contradicts
+            note = geojson.NOT_PLANAR_NOTE.format(method=method.upper())
+            row = _row(method, level, math.nan, n_used, h, ratio, math.nan, note, masked)
+            rows.append(row)
+            features.append(geojson.feature(MultiPolygon(), {"animal_id": animal_id, **row}))
+            continue
         notes = [caution] if caution and method == "kde" else []
         if geom.is_empty:
             notes.append("fixes are collinear or too few: the outline is empty")
@@ -191,9 +200,8 @@ def ranges_animal(fixes_a: pd.DataFrame, cfg=None, rng: np.random.Generator | No
             notes.append(MASK_NOTE)
         row = _row(method, level, geom.area / 1e6, n_used, h, ratio, gain, "; ".join(notes), masked)
         rows.append(row)
-        shown = place(geom)
         contours.append({"method": method, "level": level, "geometry": shown})
-        features.append(geojson.feature(geojson.to_lonlat(shown, inverse, lon_centre), {"animal_id": animal_id, **row}))
+        features.append(geojson.feature(outline, {"animal_id": animal_id, **row}))
     extras = {"contours": contours, "area_curve": curve,
               "track_xy": pd.DataFrame({"x_m": track_x, "y_m": track_y}), "masked": masked}
     return rows, features, extras
