@@ -18,6 +18,7 @@ from collections import Counter
 from roamstat import __version__
 from roamstat.config import MIN_REPLICATES, NULL_MODELS, Config, check_config
 from roamstat.errors import RoamstatError
+from roamstat.shown import shown
 from roamstat.registry import NULLS
 
 COMMANDS = {
@@ -206,7 +207,7 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return _dispatch(args, argv)
     except RoamstatError as exc:
-        print(f"roamstat: error: {exc}", file=sys.stderr)
+        print(f"roamstat: error: {shown(exc)}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("roamstat: interrupted; outputs already written are complete, the rest were not written", file=sys.stderr)
@@ -214,7 +215,7 @@ def main(argv: list[str] | None = None) -> int:
     except Exception as exc:  # a bug, not bad input
         if args.debug:
             raise
-        print(f"roamstat: internal error: {type(exc).__name__}: {exc} "
+        print(f"roamstat: internal error: {type(exc).__name__}: {shown(exc)} "
               "(this is a bug; rerun with --debug for the traceback and report it)", file=sys.stderr)
         return 1
 
@@ -224,16 +225,16 @@ def _dispatch(args: argparse.Namespace, argv: list[str]) -> int:
     if args.command == "inspect":
         from roamstat.inspect import inspect_text
 
-        print(inspect_text(args.files, cfg))
+        print(shown(inspect_text(args.files, cfg)))
         return 0
     from roamstat.io.times import unused_zone_note
     from roamstat.run import run_command
 
     result = run_command(args.command, args.files, args.out, cfg, argv)
     if note := unused_zone_note(cfg.tz, result.loaded.read.tz_note):
-        print(f"roamstat: {note}", file=sys.stderr)
+        print(f"roamstat: {shown(note)}", file=sys.stderr)
     if not cfg.quiet:
-        print(closing_summary(result), file=sys.stderr)
+        print(shown(closing_summary(result)), file=sys.stderr)
     return 0
 
 
