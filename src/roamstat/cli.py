@@ -11,6 +11,7 @@ from __future__ import annotations
 import argparse
 import dataclasses
 import difflib
+import logging
 import sys
 import warnings
 from collections import Counter
@@ -18,8 +19,8 @@ from collections import Counter
 from roamstat import __version__
 from roamstat.config import MIN_REPLICATES, NULL_MODELS, Config, check_config
 from roamstat.errors import RoamstatError
-from roamstat.shown import shown
 from roamstat.registry import NULLS
+from roamstat.shown import shown
 
 COMMANDS = {
     "inspect": "print what roamstat detects in the files (columns, animals, schedule, projection); writes nothing",
@@ -202,8 +203,11 @@ def main(argv: list[str] | None = None) -> int:
         _unknown_option_error(parser, args.command, extras)
     if not args.debug:
         # Edge cases (a zero-variance fit, a divergent moment) are handled where they arise and
-        # reported in the tables' notes; numpy's floating-point chatter would only alarm users.
-        warnings.simplefilter("ignore", RuntimeWarning)
+        # reported in the tables' notes; library warnings (numpy's floating-point chatter,
+        # matplotlib's missing-font messages, which come through logging) would only alarm users.
+        warnings.simplefilter("ignore")
+        logging.getLogger().addHandler(logging.NullHandler())
+        logging.getLogger("matplotlib").setLevel(logging.ERROR)
     try:
         return _dispatch(args, argv)
     except RoamstatError as exc:
