@@ -179,7 +179,8 @@ def fit_animal(steps_a: pd.DataFrame, cfg, rng: np.random.Generator) -> AnimalFi
     if cfg.bootstrap > 0:
         rows["params_ci"] = [_ci_text(c, cfg.bootstrap, rng) for c in candidates]
     models = {(c.comparison, c.name): c.model for c in candidates if c.model is not None}
-    best = {r.comparison: models[(r.comparison, r.model)] for r in rows.itertuples() if r.best}
+    best = {comparison: models[(comparison, model)]  # plain zip: itertuples builds a class per call
+            for comparison, model, is_best in zip(rows["comparison"], rows["model"], rows["best"]) if is_best}
     tail = _better(models.get(("tail", "power_law")), models.get(("tail", "truncated_power_law")))
     return AnimalFits(rows=rows, best_step=best.get("full"), best_turn=best.get("turn"), tail=tail,
                       step_values=steps, turn_values=turns, n_excluded_steps=n_excl,
