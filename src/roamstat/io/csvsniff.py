@@ -88,10 +88,9 @@ def decode_plan(data: bytes, path: Path) -> tuple[bytes, str, list[str]]:
         if name := _utf16_by_zeros(data):
             return _from_utf16(data, name, path, "no byte-order mark, recognised by its zero bytes")
         term, _ending = line_terminator(data)
-        lines = data.split(bytes([term]))
-        with_nul = sum(b"\x00" in line for line in lines)
-        if with_nul > BINARY_NUL_LINES * len(lines):
-            raise RoamstatError(f"{path} holds NUL bytes on {with_nul} of {len(lines)} lines, so it is not a text "
+        with_nul, n_lines = nul_lines(data, term).size, data.count(bytes([term])) + 1
+        if with_nul > BINARY_NUL_LINES * n_lines:
+            raise RoamstatError(f"{path} holds NUL bytes on {with_nul} of {n_lines} lines, so it is not a text "
                                 "(CSV) file; export it from the spreadsheet or collar software as CSV")
     try:
         data.decode("utf-8")
@@ -138,15 +137,19 @@ def check_sizes(data: bytes, term: int, path: Path) -> None:
 
 
 def _hide_nuls(data: bytes, term: int) -> tuple[bytes, np.ndarray, bytes]:
-    """NUL bytes replaced by a control byte absent from the file; the 1-based lines that held them."""
+    """NUL bytes replaced by a control byte absent from the file, the lines that held them, that byte."""
     if b"\x00" not in data:
         return data, np.array([], dtype=np.int64), b""
     stand_in = next((bytes([c]) for c in (*range(1, 9), *range(14, 32)) if bytes([c]) not in data), None)
     if stand_in is None:  # every control byte in use as well: binary
         raise ValueError("no free control byte")
+    return data.replace(b"\x00", stand_in), nul_lines(data, term), stand_in
+
+
+def nul_lines(data: bytes, term: int) -> np.ndarray:
+    """The 1-based physical lines that hold NUL bytes."""
     arr = np.frombuffer(data, dtype=np.uint8)
-    lines = 1 + np.searchsorted(np.flatnonzero(arr == term), np.flatnonzero(arr == 0))
-    return data.replace(b"\x00", stand_in), np.unique(lines), stand_in
+    return np.unique(1 + np.searchsorted(np.flatnonzero(arr == term), np.flatnonzero(arr == 0)))
 
 
 def line_terminator(data: bytes) -> tuple[int, str]:
@@ -250,7 +253,7 @@ def read_table(raw: bytes, path: Path) -> RawTable:
         notes.append("bare-CR line endings")
     check_sizes(data, term, path)
     try:
-        data, nul_lines, stand_in = _hide_nuls(data, term)
+        data, nul_at, stand_in = _hide_nuls(data, term)
     except ValueError:
         raise RoamstatError(f"{path} holds NUL bytes and every other control byte, so it is not a text (CSV) file; "
                             "export it from the spreadsheet or collar software as CSV") from None
@@ -274,8 +277,8 @@ def read_table(raw: bytes, path: Path) -> RawTable:
     if scan.embedded_breaks and frame is not None:
         notes.append("quoted fields with line breaks")
     table = _split_header(frame, counts, line_numbers, encoding, delim, notes, path)
-    if nul_lines.size:
-        _mark_nul_rows(table, nul_lines, stand_in.decode("ascii"), path)
+    if nul_at.size:
+        _mark_nul_rows(table, nul_at, stand_in.decode("ascii"), path)
     return table
 
 

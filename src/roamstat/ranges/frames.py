@@ -35,7 +35,7 @@ def observed_fixes(fixes_a: pd.DataFrame) -> pd.DataFrame:
     keep &= fixes_a["time"].notna().to_numpy()
     if "interpolated" in fixes_a.columns:
         keep &= ~fixes_a["interpolated"].fillna(False).astype(bool).to_numpy()
-    kept = fixes_a[keep]
+    kept = fixes_a if keep.all() else fixes_a[keep]
     if not kept["time"].is_monotonic_increasing:  # sorting is the costly part for short tracks
         kept = kept.sort_values("time", kind="stable")
     return kept.reset_index(drop=True)
