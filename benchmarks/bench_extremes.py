@@ -55,15 +55,18 @@ def big_track(n_fixes: int, path: Path, seed: int = 2) -> Path:
     return path
 
 
-def run(path: Path, *options: str) -> tuple[float, float]:
+def run(path: Path, *options: str) -> tuple[float, float, float]:
+    """Wall seconds, CPU seconds (all processes; steadier than wall on a shared machine), peak MB."""
     out = WORK / f"out-{path.stem}"
     shutil.rmtree(out, ignore_errors=True)
     exe = Path(sys.executable).with_name("roamstat")
-    before = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
     started = time.perf_counter()
     subprocess.run([str(exe), "run", str(path), "--out", str(out), "--quiet", *options], check=True)
     elapsed = time.perf_counter() - started
-    return elapsed, max(before, resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss) / 1024
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    cpu = (after.ru_utime + after.ru_stime) - (before.ru_utime + before.ru_stime)
+    return elapsed, cpu, max(before.ru_maxrss, after.ru_maxrss) / 1024
 
 
 def main() -> None:
@@ -74,16 +77,17 @@ def main() -> None:
     args = parser.parse_args()
     WORK.mkdir(exist_ok=True)
     if args.tiny:
-        one, _ = run(tiny_deployment(1, WORK / "tiny_1.csv"), "--no-report")
-        many, _ = run(tiny_deployment(args.tiny, WORK / f"tiny_{args.tiny}.csv"), "--no-report")
-        per = (many - one) / max(args.tiny - 1, 1)
-        print(f"tiny: {args.tiny} animals in {many:.1f} s (1 animal {one:.1f} s): {1000 * per:.2f} ms per animal, "
-              f"ratio to the 5 ms target {per / TINY_TARGET_S:.2f}; 50,000 animals would take about "
-              f"{one + 50_000 * per:.0f} s")
+        one, one_cpu, _ = run(tiny_deployment(1, WORK / "tiny_1.csv"), "--no-report")
+        many, many_cpu, _ = run(tiny_deployment(args.tiny, WORK / f"tiny_{args.tiny}.csv"), "--no-report")
+        per, per_cpu = ((b - a) / max(args.tiny - 1, 1) for a, b in ((one, many), (one_cpu, many_cpu)))
+        print(f"tiny: {args.tiny} animals in {many:.1f} s (1 animal {one:.1f} s): {1000 * per:.2f} ms wall, "
+              f"{1000 * per_cpu:.2f} ms CPU per animal; ratio to the 5 ms target {per / TINY_TARGET_S:.2f} wall, "
+              f"{per_cpu / TINY_TARGET_S:.2f} CPU; 50,000 animals would take about {one + 50_000 * per:.0f} s")
     if args.big:
-        elapsed, peak = run(big_track(args.big, WORK / f"big_{args.big}.csv"), "--workers", str(args.workers))
+        elapsed, cpu, peak = run(big_track(args.big, WORK / f"big_{args.big}.csv"), "--workers", str(args.workers))
         scaled = elapsed * BIG_TARGET_FIXES / args.big
-        print(f"big: {args.big} fixes in {elapsed:.1f} s, peak {peak:.0f} MB; time ratio to 10 min at 2,000,000 fixes "
+        print(f"big: {args.big} fixes in {elapsed:.1f} s ({cpu:.1f} s CPU), peak {peak:.0f} MB; "
+              "time ratio to 10 min at 2,000,000 fixes "
               f"{scaled / BIG_TARGET_S:.2f} (linear extrapolation), memory ratio to 3 GB {peak / BIG_TARGET_MB:.2f}"
               + ("" if args.big == BIG_TARGET_FIXES else " (memory not extrapolated)"))
 
