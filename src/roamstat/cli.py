@@ -11,6 +11,7 @@ from __future__ import annotations
 import argparse
 import dataclasses
 import difflib
+import logging
 import sys
 import warnings
 from collections import Counter
@@ -19,6 +20,7 @@ from roamstat import __version__
 from roamstat.config import DEFAULT_NULLS, MIN_REPLICATES, Config, check_config
 from roamstat.errors import RoamstatError
 from roamstat.registry import NULLS
+from roamstat.shown import shown
 
 COMMANDS = {
     "inspect": "print what roamstat detects in the files (columns, animals, schedule, projection); writes nothing",
@@ -204,12 +206,15 @@ def main(argv: list[str] | None = None) -> int:
         _unknown_option_error(parser, args.command, extras)
     if not args.debug:
         # Edge cases (a zero-variance fit, a divergent moment) are handled where they arise and
-        # reported in the tables' notes; numpy's floating-point chatter would only alarm users.
-        warnings.simplefilter("ignore", RuntimeWarning)
+        # reported in the tables' notes; library warnings (numpy's floating-point chatter,
+        # matplotlib's missing-font messages, which come through logging) would only alarm users.
+        warnings.simplefilter("ignore")
+        logging.getLogger().addHandler(logging.NullHandler())
+        logging.getLogger("matplotlib").setLevel(logging.ERROR)
     try:
         return _dispatch(args, argv)
     except RoamstatError as exc:
-        print(f"roamstat: error: {exc}", file=sys.stderr)
+        print(f"roamstat: error: {shown(exc)}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("roamstat: interrupted; outputs already written are complete, the rest were not written", file=sys.stderr)
@@ -217,7 +222,7 @@ def main(argv: list[str] | None = None) -> int:
     except Exception as exc:  # a bug, not bad input
         if args.debug:
             raise
-        print(f"roamstat: internal error: {type(exc).__name__}: {exc} "
+        print(f"roamstat: internal error: {type(exc).__name__}: {shown(exc)} "
               "(this is a bug; rerun with --debug for the traceback and report it)", file=sys.stderr)
         return 1
 
@@ -227,16 +232,16 @@ def _dispatch(args: argparse.Namespace, argv: list[str]) -> int:
     if args.command == "inspect":
         from roamstat.inspect import inspect_text
 
-        print(inspect_text(args.files, cfg))
+        print(shown(inspect_text(args.files, cfg)))
         return 0
     from roamstat.io.times import unused_zone_note
     from roamstat.run import run_command
 
     result = run_command(args.command, args.files, args.out, cfg, argv)
     if note := unused_zone_note(cfg.tz, result.loaded.read.tz_note):
-        print(f"roamstat: {note}", file=sys.stderr)
+        print(f"roamstat: {shown(note)}", file=sys.stderr)
     if not cfg.quiet:
-        print(closing_summary(result), file=sys.stderr)
+        print(shown(closing_summary(result)), file=sys.stderr)
     return 0
 
 
