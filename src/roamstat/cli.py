@@ -11,13 +11,14 @@ from __future__ import annotations
 import argparse
 import dataclasses
 import difflib
+import signal
 import sys
 import warnings
 from collections import Counter
 
 from roamstat import __version__
 from roamstat.config import MIN_REPLICATES, NULL_MODELS, Config, check_config
-from roamstat.errors import RoamstatError
+from roamstat.errors import RoamstatError, Stopped
 from roamstat.registry import NULLS
 
 COMMANDS = {
@@ -206,20 +207,43 @@ def main(argv: list[str] | None = None) -> int:
         # Edge cases (a zero-variance fit, a divergent moment) are handled where they arise and
         # reported in the tables' notes; numpy's floating-point chatter would only alarm users.
         warnings.simplefilter("ignore", RuntimeWarning)
+    previous = _on_sigterm(_stop)
     try:
         return _dispatch(args, argv)
     except RoamstatError as exc:
         print(f"roamstat: error: {exc}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
-        print("roamstat: interrupted; outputs already written are complete, the rest were not written", file=sys.stderr)
-        return 130
+        return _stopped(signal.SIGINT)
+    except Stopped as exc:
+        return _stopped(exc.signum)
     except Exception as exc:  # a bug, not bad input
         if args.debug:
             raise
         print(f"roamstat: internal error: {type(exc).__name__}: {exc} "
               "(this is a bug; rerun with --debug for the traceback and report it)", file=sys.stderr)
         return 1
+    finally:
+        _on_sigterm(previous)
+
+
+def _on_sigterm(handler):
+    """Install a SIGTERM handler; returns the previous one (None off the main thread, where Python allows none)."""
+    try:
+        return signal.signal(signal.SIGTERM, handler) if handler is not None else None
+    except ValueError:
+        return None
+
+
+def _stop(signum, frame):
+    raise Stopped(signum)
+
+
+def _stopped(signum: int) -> int:
+    """Say what a stop leaves behind (never that outputs are complete); exit 128 + signal number."""
+    print(f"roamstat: stopped by {signal.Signals(signum).name}; no partial outputs were kept: the output folder "
+          "holds one whole run, its earlier one unless this run had already finished", file=sys.stderr)
+    return 128 + signum
 
 
 def _dispatch(args: argparse.Namespace, argv: list[str]) -> int:
