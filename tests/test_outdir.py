@@ -232,6 +232,7 @@ def test_a_failed_command_leaves_no_new_folder(tmp_path, capsys):
     bad = tmp_path / "bad.csv"
     bad.write_text("a,b\n1,2\n")
     assert main(["steps", str(bad), "--out", str(tmp_path / "o"), "--quiet"]) == 2
+    assert main(["steps", str(bad), "--out", str(tmp_path / "new" / "deeper" / "o"), "--quiet"]) == 2
     assert sorted(p.name for p in tmp_path.iterdir()) == ["bad.csv"]
 
 

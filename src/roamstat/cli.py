@@ -102,7 +102,8 @@ _OPTIONS = (
     ("output", (
         ("--out", dict(required=True, metavar="DIR", help="output folder")),
         ("--force", dict(action="store_true",
-                         help="write into a non-empty folder that is not an earlier roamstat output")),
+                         help="keep files of your own found in --out (each command replaces the folder's "
+                              "earlier roamstat outputs as a whole)")),
         ("--format", dict(choices=("csv", "parquet"), default="csv", help="table format (default csv)")),
         ("--low-memory", dict(action="store_true", help="read in chunks and work a batch of animals at a time "
                                                         "(big deployments; same tables)")),

@@ -23,7 +23,7 @@ import shutil
 import signal
 import socket
 import time
-from contextlib import contextmanager
+from contextlib import contextmanager, suppress
 from pathlib import Path
 
 from roamstat.errors import RoamstatError
@@ -64,6 +64,7 @@ class OutputFolder:
         self.lock = self.parent / f".{out.name}{_LOCK}"
         self.foreign: list[str] = []
         self._locked = self._committed = False
+        self._made: list[Path] = []
         resolved_inputs = {Path(p).resolve() for p in inputs}
         if out.resolve() in resolved_inputs:
             raise RoamstatError(f"--out {out} is one of the input files; choose a new folder for the outputs")
@@ -72,6 +73,7 @@ class OutputFolder:
 
     def __enter__(self) -> OutputFolder:
         with system_errors(self.out):
+            self._made = [p for p in (self.parent, *self.parent.parents) if not os.path.lexists(p)]
             self.parent.mkdir(parents=True, exist_ok=True)
             self._check_writable()
             self._acquire()
@@ -85,7 +87,7 @@ class OutputFolder:
                         "or add --force to keep those files beside the new outputs")
                 self.staging.mkdir()
             except BaseException:
-                self._release()
+                self.__exit__()
                 raise
         return self
 
@@ -95,6 +97,10 @@ class OutputFolder:
                 shutil.rmtree(self.staging, ignore_errors=True)
         finally:
             self._release()
+        if not self._committed:
+            for folder in self._made:  # a failed command leaves no new folder, parents included
+                with suppress(OSError):
+                    folder.rmdir()
 
     # --- the swap -------------------------------------------------------------------------------
 

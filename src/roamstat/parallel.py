@@ -75,7 +75,10 @@ class AnimalExecutor:
                 pool.shutdown()
         if self._client is not None:
             client, self._client = self._client, None
-            client.close(timeout=5 if abort else "60s")
+            if abort:
+                client.close(timeout=5)
+            else:
+                client.close()
 
     def map(self, func: Callable, tasks: Sequence, desc: str = "animals") -> list:
         """``[func(t) for t in tasks]`` on this executor's backend, results in task order."""
