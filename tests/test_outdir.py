@@ -95,13 +95,15 @@ def test_run_stopped_at_random_moments_leaves_one_true_run_and_no_workers(sig, s
     out = outs / "o"
     assert cli("clean", small, "--out", out, "--quiet")[0] == 0
     rng = np.random.default_rng(int(sig))
-    for delay in rng.uniform(0.5, 4.5, size=2):  # start-up, reading, per-animal work, report, swap
+    stopped = []
+    for delay in (rng.uniform(2.0, 3.0), rng.uniform(0.5, 6.0)):  # reading and work; then anywhere up to the swap
         proc = subprocess.Popen([sys.executable, "-m", "roamstat", "run", str(small), "--out", str(out), *FAST,
-                                 "--workers", "2"], stderr=subprocess.PIPE, text=True)
+                                 "--workers", "2"], stderr=subprocess.PIPE, text=True, preexec_fn=_default_sigint)
         time.sleep(delay)
         workers = children(proc.pid)
         proc.send_signal(sig)
         _, err = proc.communicate(timeout=30)
+        stopped.append(proc.returncode != 0)
         if proc.returncode == 128 + sig:  # (-sig: stopped while Python was still starting, before roamstat ran)
             assert f"stopped by {signal.Signals(sig).name}" in err
             assert "complete" not in err  # never claims outputs are complete
@@ -113,6 +115,12 @@ def test_run_stopped_at_random_moments_leaves_one_true_run_and_no_workers(sig, s
                 pass
         assert one_true_run(out)["command"] in {"clean", "run"}
         assert sorted(p.name for p in outs.iterdir()) == ["o"]  # no staging, old run or lock left beside it
+    assert stopped[0]  # the first stop comes mid-run, so the test cannot pass by the run simply finishing
+
+
+def _default_sigint() -> None:
+    """A child started from a background job inherits an ignored Ctrl-C; give it the terminal's default."""
+    signal.signal(signal.SIGINT, signal.SIG_DFL)
 
 
 @pytest.mark.slow
