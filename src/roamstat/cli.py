@@ -60,15 +60,23 @@ def _analysis_options() -> argparse.ArgumentParser:
     g = p.add_argument_group("models and null tests")
     g.add_argument("--min-step", type=float, default=0.0, metavar="M", help="leave steps of at most this length (m) out of step-length fits")
     g.add_argument("--bootstrap", type=int, default=0, metavar="N", help="parametric-bootstrap replicates for parameter intervals")
-    g.add_argument("--null", default=",".join(NULL_MODELS), help="null models, comma-separated (default crw,shuffle,levy)")
+    g.add_argument("--null", default=",".join(NULL_MODELS), help=f"null models, comma-separated (default {','.join(NULL_MODELS)})")
     g.add_argument("--replicates", type=int, default=999, metavar="M", help="simulated walks per animal and null (default 999)")
     g.add_argument("--seed", type=int, default=Config.seed, help=f"run seed (default {Config.seed})")
     g.add_argument("--alpha", type=float, default=0.05, help="significance level for verdicts, on q-values (default 0.05)")
+    g.add_argument("--uere", type=float, metavar="M", help="user-equivalent range error (m): location error SD = DOP x M")
+    g.add_argument("--error-classes", metavar="CSV", help="location-quality class -> error SD (m) table, overriding the default")
     r = p.add_argument_group("home ranges")
     r.add_argument("--kde-bandwidth", type=float, metavar="M", help="kernel bandwidth in metres (default: reference bandwidth)")
     r.add_argument("--mask-locations", action="store_true", help="publish coordinates relative to a hidden origin (sensitive species)")
     r.add_argument("--mask-grid", type=float, metavar="M", help="with --mask-locations, also coarsen coordinates to this grid (m)")
     return p
+
+
+def _positive(value, option: str):
+    if value is not None and not (value > 0 and value < float("inf")):
+        raise RoamstatError(f"{option} {value}: give a positive number of metres, e.g. 5")
+    return value
 
 
 def _output_options() -> argparse.ArgumentParser:
@@ -129,7 +137,7 @@ def config_from_args(args: argparse.Namespace) -> Config:
             mask_locations=args.mask_locations or args.mask_grid is not None, mask_grid=args.mask_grid,
             workers=resolve_workers(args.workers), scheduler=args.scheduler,
             report=not args.no_report, quiet=args.quiet, force=args.force, output_format=args.format,
-            low_memory=args.low_memory,
+            low_memory=args.low_memory, uere_m=_positive(args.uere, "--uere"), error_class_table=args.error_classes,
         )
     return Config(**values)
 

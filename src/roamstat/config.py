@@ -10,7 +10,7 @@ from __future__ import annotations
 import dataclasses
 from dataclasses import dataclass
 
-NULL_MODELS = ("crw", "shuffle", "levy")
+NULL_MODELS = ("crw", "shuffle", "levy", "ctcrw")
 
 
 @dataclass(frozen=True)
@@ -46,6 +46,8 @@ class Config:
     seed: int = 20261201
     alpha: float = 0.05
     min_steps_test: int = 20  # shorter tracks get verdict "insufficient"
+    uere_m: float | None = None  # user-equivalent range error (m): location error SD = dop x uere
+    error_class_table: str | None = None  # CSV path: location-quality class -> error SD (m)
     # --- ranges --------------------------------------------------------------
     kde_bandwidth: float | None = None  # metres; None: reference bandwidth h_ref
     mask_locations: bool = False

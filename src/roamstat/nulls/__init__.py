@@ -6,18 +6,23 @@ Each null is built from one animal's fits (the protocol of
 ``n_reps`` walks at the given step indices.  :func:`build_null` builds one by
 its name in ``Config.nulls``; the correlated random walk also gives the
 Kareiva & Shigesada (1983) expectation (:mod:`roamstat.nulls.analytic`).
+The continuous-time null ``ctcrw`` (:mod:`roamstat.nulls.ctcrw`, marked
+``in_time``) is built from the observed fixes and the config instead and
+simulates at the fixes' own times.
 """
 
 from __future__ import annotations
 
 from roamstat.nulls.analytic import expected_nsd, expected_nsd_symmetric
 from roamstat.nulls.crw import CrwNull
+from roamstat.nulls.ctcrw import CtcrwNull
 from roamstat.nulls.levy import LevyNull
 from roamstat.nulls.observed import NO_SHORT_STEPS, ShortSteps, short_steps
 from roamstat.nulls.shuffle import ShuffleNull
 from roamstat.nulls.walk import NullUnavailable, Walk, simulate_nsd
 
-NULLS = {"crw": CrwNull, "shuffle": ShuffleNull, "levy": LevyNull}
+NULLS = {"crw": CrwNull, "shuffle": ShuffleNull, "levy": LevyNull,
+         "ctcrw": CtcrwNull}  # built from the observed fixes and cfg (``in_time``), not from the step fits
 
 
 def build_null(name: str, fits, short: ShortSteps = NO_SHORT_STEPS) -> Walk:
@@ -44,5 +49,5 @@ def build_null(name: str, fits, short: ShortSteps = NO_SHORT_STEPS) -> Walk:
     return NULLS[name](fits, short)
 
 
-__all__ = ["CrwNull", "LevyNull", "NULLS", "NO_SHORT_STEPS", "NullUnavailable", "ShortSteps", "ShuffleNull",
+__all__ = ["CrwNull", "CtcrwNull", "LevyNull", "NULLS", "NO_SHORT_STEPS", "NullUnavailable", "ShortSteps", "ShuffleNull",
            "Walk", "build_null", "expected_nsd", "expected_nsd_symmetric", "short_steps", "simulate_nsd"]
