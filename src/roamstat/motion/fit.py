@@ -1,0 +1,213 @@
+"""Maximum-likelihood fits of the motion models, standard errors and AICc selection.
+
+Parameters are optimised on the log scale (L-BFGS-B, numerical gradient) from the best of a
+small grid of starting values taken from the data (step-based diffusion, positional variance,
+median interval). Standard errors come from the inverse of a central-difference Hessian of the
+negative log-likelihood in log parameters, carried to SI units by the delta method.
+AICc (Hurvich & Tsai 1989) counts the 2 (n - 1) scalar observations that the conditional
+likelihood scores and every free parameter, the fitted mean position included.
+
+References
+----------
+Hurvich, C.M. & Tsai, C.-L. (1989) Regression and time series model selection in small samples.
+Biometrika 76, 297-307.
+Burnham, K.P. & Anderson, D.R. (2002) Model Selection and Multimodel Inference, 2nd ed. Springer.
+"""
+from __future__ import annotations
+
+import itertools
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.optimize import minimize
+
+from .errors import LocationError
+from .kalman import MOTION_MODELS, MOVEMENT_PARAMS, PARAM_KEYS, RANGE_RESIDENT, check_model
+from .kalman import position_acf as _acf
+from .kalman import semivariance as _semivariance
+from .likelihood import Track, conditional_loglik, prepare_track
+
+MIN_FIXES = 10          # fewer fixes than this: no fits (too few to tell the models apart)
+HESSIAN_STEP = 1e-3     # step in log parameters for the numerical Hessian
+BOUND_FACTOR = 1e4      # log-parameter box: start scale / BOUND_FACTOR .. start scale * BOUND_FACTOR
+UNBOUNDED = ("brownian", "ctcrw")
+
+
+@dataclass(frozen=True, eq=False)
+class MotionFit:
+    """A fitted continuous-time motion model of one animal (see ``kalman`` for the models)."""
+
+    name: str
+    params: dict
+    se: dict
+    free: tuple
+    cov_log: np.ndarray
+    centre_xy: tuple
+    loglik: float
+    n_fixes: int
+    n_params: int
+    aicc: float
+    error_source: str
+    range_resident: bool
+
+    def semivariance(self, lag_s) -> np.ndarray:
+        """Per-axis semi-variance 0.5 E[(x(t + lag) - x(t))^2] (m^2), without location error."""
+        return _semivariance(self.name, self.params, lag_s)
+
+    def position_acf(self, lag_s) -> np.ndarray:
+        """Autocorrelation of position at the lags (NaN for unbounded models)."""
+        return _acf(self.name, self.params, lag_s)
+
+    def expected_nsd(self, t_s) -> np.ndarray:
+        """E|r(t) - r(0)|^2 (m^2) over both axes, from a fix at time 0, without location error."""
+        return 4.0 * self.semivariance(t_s)
+
+    def simulate(self, t_s, n_reps: int, rng: np.random.Generator, error_sd_m=None) -> np.ndarray:
+        """Exact draws at the times ``t_s``, shape (n_reps, len(t_s), 2); see ``simulate.simulate``."""
+        from .simulate import simulate
+
+        return simulate(self, t_s, n_reps, rng, error_sd_m)
+
+
+def _start_scales(track: Track) -> dict:
+    """Data-based scales for each parameter (also the centre of its search box)."""
+    dt = np.diff(track.t_s)
+    d2 = np.sum(np.diff(track.xy, axis=0) ** 2, axis=1)
+    moving = dt > 0
+    dt_med = float(np.median(dt[moving])) if moving.any() else 1.0
+    diffusion = float(np.median(d2[moving] / (4.0 * dt[moving]))) if moving.any() else 1.0
+    diffusion = max(diffusion, 1e-12)
+    sigma = max(float(np.sqrt(0.5 * track.xy.var(axis=0).sum())), 1e-6)
+    step_sd = max(float(np.sqrt(0.5 * np.median(d2))), 1e-6)
+    return {"diffusion_m2_s": diffusion, "sigma_m": sigma,
+            "tau_position_s": min(max(sigma**2 / diffusion, dt_med), 10.0 * (np.ptp(track.t_s) + dt_med)),
+            "tau_velocity_s": dt_med, "error_sd_m": step_sd}
+
+
+# multipliers of the data scale tried as starting values
+_START_GRID = {"diffusion_m2_s": (1.0,), "sigma_m": (1.0,), "tau_position_s": (0.3, 1.0, 3.0),
+               "tau_velocity_s": (0.1, 1.0, 10.0), "error_sd_m": (0.03, 0.3, 1.0)}
+
+
+def _hessian(f, x: np.ndarray, h: float = HESSIAN_STEP) -> np.ndarray:
+    """Central-difference Hessian of f at x."""
+    k = x.size
+    H = np.empty((k, k))
+    f0 = f(x)
+    E = np.eye(k) * h
+    for i in range(k):
+        H[i, i] = (f(x + E[i]) - 2.0 * f0 + f(x - E[i])) / h**2
+        for j in range(i):
+            H[i, j] = H[j, i] = (f(x + E[i] + E[j]) - f(x + E[i] - E[j])
+                                 - f(x - E[i] + E[j]) + f(x - E[i] - E[j])) / (4.0 * h**2)
+    return H
+
+
+def _delta_se(name: str, params: dict, free: tuple, cov_log: np.ndarray) -> dict:
+    """SEs in SI units: d(value) = value * d(log value); diffusion of ou/ou_ctcrw = sigma^2/tau_p."""
+    se = dict.fromkeys(PARAM_KEYS, np.nan)
+    for key, value in params.items():
+        if not np.isfinite(value):
+            continue
+        if key in free:
+            grad = np.zeros(len(free))
+            grad[free.index(key)] = 1.0
+        elif key == "diffusion_m2_s" and name in RANGE_RESIDENT:
+            grad = np.zeros(len(free))
+            grad[free.index("sigma_m")], grad[free.index("tau_position_s")] = 2.0, -1.0
+        else:
+            continue
+        var = grad @ cov_log @ grad
+        se[key] = value * np.sqrt(var) if var >= 0 else np.nan
+    return se
+
+
+def aicc(loglik: float, k: int, n_obs: int) -> float:
+    """AICc = -2 logL + 2k + 2k(k+1)/(n - k - 1); inf when n <= k + 1 (Hurvich & Tsai 1989)."""
+    if n_obs - k - 1 <= 0:
+        return np.inf
+    return -2.0 * loglik + 2.0 * k + 2.0 * k * (k + 1) / (n_obs - k - 1)
+
+
+def fit_model(name: str, track: Track, error: LocationError) -> MotionFit:
+    """Fit one model to a prepared track by maximum likelihood."""
+    check_model(name)
+    estimate_error = track.error_var is None
+    free = MOVEMENT_PARAMS[name] + (("error_sd_m",) if estimate_error else ())
+    scales = _start_scales(track)
+    centre = np.log([scales[key] for key in free])
+    bounds = [(c - np.log(BOUND_FACTOR), c + np.log(BOUND_FACTOR)) for c in centre]
+
+    def natural(theta):
+        p = dict(zip(free, np.exp(theta)))
+        if name == "ou_ctcrw" and p["tau_velocity_s"] > p["tau_position_s"]:
+            # the likelihood is symmetric in the two time scales: name the longer one tau_p
+            p["tau_position_s"], p["tau_velocity_s"] = p["tau_velocity_s"], p["tau_position_s"]
+        return p
+
+    def objective(theta):
+        value = -conditional_loglik(name, natural(theta), track)[0]
+        return value if np.isfinite(value) else 1e300
+
+    starts = [centre + np.log(mult) for mult in itertools.product(*(_START_GRID[key] for key in free))]
+    best_start = min(starts, key=objective)
+    result = minimize(objective, best_start, method="L-BFGS-B", bounds=bounds)
+    theta = result.x
+    p = natural(theta)
+    if name == "ou_ctcrw":  # keep theta in the order of the named parameters for the Hessian
+        theta = np.log([p[key] for key in free])
+    loglik, mean = conditional_loglik(name, p, track)
+    try:
+        cov_log = np.linalg.inv(_hessian(objective, theta))
+    except np.linalg.LinAlgError:
+        cov_log = np.full((len(free), len(free)), np.nan)
+    params = dict.fromkeys(PARAM_KEYS, np.nan)
+    params.update(p)
+    if name in RANGE_RESIDENT:
+        params["diffusion_m2_s"] = p["sigma_m"] ** 2 / p["tau_position_s"]
+    if not estimate_error:
+        params["error_sd_m"] = float(np.median(np.sqrt(track.error_var)))
+    se = _delta_se(name, params, free, cov_log)
+    resident = name in RANGE_RESIDENT
+    k = len(free) + (2 if resident else 0)
+    centre_xy = tuple(float(v) for v in (mean if resident else track.origin))
+    return MotionFit(name=name, params={k_: float(v) for k_, v in params.items()}, se=se, free=free,
+                     cov_log=cov_log, centre_xy=centre_xy, loglik=loglik, n_fixes=track.n,
+                     n_params=k, aicc=aicc(loglik, k, 2 * (track.n - 1)),
+                     error_source=error.source, range_resident=resident)
+
+
+def fit_motion_models(t_s, x_m, y_m, error: LocationError, models=MOTION_MODELS) -> list[MotionFit]:
+    """Fit each motion model to one animal's fixes.
+
+    Parameters
+    ----------
+    t_s : array-like
+        Fix times in seconds (sorted; equal times allowed).
+    x_m, y_m : array-like
+        Positions in the animal's planar frame (m).
+    error : LocationError
+        Known per-fix error SDs, or None to estimate one SD with each model.
+    models : sequence of str
+        Names from ``MOTION_MODELS``.
+
+    Returns
+    -------
+    list of MotionFit
+        One per model, in the order asked; empty when there are fewer than ``MIN_FIXES`` fixes.
+    """
+    track = prepare_track(t_s, x_m, y_m, error.sd_m)
+    if track.n < MIN_FIXES:
+        return []
+    return [fit_model(name, track, error) for name in models]
+
+
+def best_fit(fits) -> MotionFit | None:
+    """The fit with the lowest AICc (None when there is none)."""
+    fits = [f for f in fits if np.isfinite(f.aicc)]
+    return min(fits, key=lambda f: f.aicc) if fits else None
+
+
+def best_unbounded(fits) -> MotionFit | None:
+    """The lowest-AICc fit among the unbounded models (brownian, ctcrw): the null's candidate."""
+    return best_fit([f for f in fits if f.name in UNBOUNDED])

@@ -1,0 +1,108 @@
+"""Kalman filter and Rauch-Tung-Striebel smoother for the per-axis 2-state models.
+
+Both axes (and any extra columns, such as the column of ones used to profile out a mean)
+share one set of gains, because the models are isotropic and the location error is the same
+on both axes: the covariance recursion runs once and only the means are carried per column.
+Compiled with numba so that one likelihood evaluation is a tight O(n) loop.
+
+References
+----------
+Kalman, R.E. (1960) A new approach to linear filtering and prediction problems. J. Basic Eng.
+82, 35-45.
+Rauch, H.E., Tung, F. & Striebel, C.T. (1965) Maximum likelihood estimates of linear dynamic
+systems. AIAA J. 3, 1445-1450.
+Harvey, A.C. (1989) Forecasting, Structural Time Series Models and the Kalman Filter.
+Cambridge University Press (prediction-error decomposition of the likelihood).
+"""
+from __future__ import annotations
+
+import numba
+import numpy as np
+
+# floor on an innovation variance (m^2): only reached with zero location error at dt = 0
+MIN_VAR_M2 = 1e-9
+
+
+@numba.njit(cache=True)
+def forward(F, Q, r, observed, Y, P_first, update_first):
+    """Run the filter through every time.
+
+    Parameters
+    ----------
+    F, Q : ndarray (n, 2, 2)
+        Transition and innovation covariance into time i (row 0 unused).
+    r : ndarray (n,)
+        Location-error variance per axis at each time.
+    observed : ndarray of bool (n,)
+        False for times where only a prediction is wanted.
+    Y : ndarray (n, k)
+        Observed positions, one column per series sharing the gains.
+    P_first : ndarray (2, 2)
+        State covariance at time 0 (state mean 0 for every column).
+    update_first : bool
+        Whether the observation at time 0 updates the state (False when P_first already
+        conditions on it).
+
+    Returns
+    -------
+    V : ndarray (n, k)   innovations (0 where there is no update)
+    S : ndarray (n,)     innovation variances (NaN where there is no update)
+    mp, Pp, mf, Pf :     predicted and filtered means (n, k, 2) and covariances (n, 2, 2)
+    """
+    n, k = Y.shape
+    V = np.zeros((n, k))
+    S = np.full(n, np.nan)
+    mp = np.zeros((n, k, 2))
+    mf = np.zeros((n, k, 2))
+    Pp = np.zeros((n, 2, 2))
+    Pf = np.zeros((n, 2, 2))
+    m = np.zeros((k, 2))
+    p00, p01, p11 = P_first[0, 0], P_first[0, 1], P_first[1, 1]
+    for i in range(n):
+        if i > 0:
+            f00, f01, f10, f11 = F[i, 0, 0], F[i, 0, 1], F[i, 1, 0], F[i, 1, 1]
+            for c in range(k):
+                a, b = m[c, 0], m[c, 1]
+                m[c, 0] = f00 * a + f01 * b
+                m[c, 1] = f10 * a + f11 * b
+            # F P F' + Q, written out for the symmetric 2x2 case
+            t00 = f00 * p00 + f01 * p01
+            t01 = f00 * p01 + f01 * p11
+            t10 = f10 * p00 + f11 * p01
+            t11 = f10 * p01 + f11 * p11
+            p00, p01, p11 = (t00 * f00 + t01 * f01 + Q[i, 0, 0],
+                             t00 * f10 + t01 * f11 + Q[i, 0, 1],
+                             t10 * f10 + t11 * f11 + Q[i, 1, 1])
+        mp[i] = m
+        Pp[i, 0, 0], Pp[i, 0, 1], Pp[i, 1, 0], Pp[i, 1, 1] = p00, p01, p01, p11
+        if observed[i] and (i > 0 or update_first):
+            s = max(p00 + r[i], MIN_VAR_M2)
+            k0, k1 = p00 / s, p01 / s
+            for c in range(k):
+                v = Y[i, c] - m[c, 0]
+                V[i, c] = v
+                m[c, 0] += k0 * v
+                m[c, 1] += k1 * v
+            p00, p01, p11 = p00 - k0 * p00, p01 - k0 * p01, p11 - k1 * p01
+            S[i] = s
+        mf[i] = m
+        Pf[i, 0, 0], Pf[i, 0, 1], Pf[i, 1, 0], Pf[i, 1, 1] = p00, p01, p01, p11
+    return V, S, mp, Pp, mf, Pf
+
+
+@numba.njit(cache=True)
+def backward(F, mp, Pp, mf, Pf):
+    """Rauch-Tung-Striebel pass: smoothed means (n, k, 2) and covariances (n, 2, 2).
+
+    The pseudo-inverse of the predicted covariance covers the models whose velocity state is
+    identically zero (brownian, ou), where that covariance is singular.
+    """
+    n, k = mf.shape[0], mf.shape[1]
+    ms = mf.copy()
+    Ps = Pf.copy()
+    for i in range(n - 2, -1, -1):
+        G = Pf[i] @ F[i + 1].T @ np.linalg.pinv(Pp[i + 1])
+        for c in range(k):
+            ms[i, c] = mf[i, c] + G @ (ms[i + 1, c] - mp[i + 1, c])
+        Ps[i] = Pf[i] + G @ (Ps[i + 1] - Pp[i + 1]) @ G.T
+    return ms, Ps
