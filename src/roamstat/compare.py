@@ -295,8 +295,9 @@ def test_animal(fixes_a: pd.DataFrame, steps_a: pd.DataFrame, fits, nominal_dt_s
     discrete = _rows_where(fixes_a, "on_grid", True)
     observed = _rows_where(fixes_a, "interpolated", False)
     n_obs_steps = int(np.count_nonzero(np.isfinite(_column(steps_a, "step_m"))))
-    usable, _, _ = on_interval(steps_a) if len(steps_a) else (np.zeros(0, bool), math.nan, "")
-    short = short_steps(_column(steps_a, "step_m")[usable], np.size(_values(fits, "step_values")), cfg.min_step)
+    # the short steps the walks keep in proportion come from the same one-interval steps as the fits
+    short = short_steps(_column(steps_a, "step_m")[on_interval(steps_a)[0]], np.size(_values(fits, "step_values")),
+                        cfg.min_step)
     rows, curves = [], {}
     for name in cfg.nulls:
         if getattr(NULLS[name], "in_time", False):

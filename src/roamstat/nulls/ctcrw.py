@@ -27,15 +27,10 @@ random walk. Oecologia 56: 234-238.
 
 from __future__ import annotations
 
-from functools import lru_cache
-
 import numpy as np
 import pandas as pd
 
 from roamstat.nulls.walk import NullUnavailable
-
-#: Fewest observed fixes for the motion-model fit (two to four parameters; judgement, no source).
-MIN_FIXES = 10
 
 
 class CtcrwNull:
@@ -58,6 +53,7 @@ class CtcrwNull:
 
     def __init__(self, fixes_a: pd.DataFrame, cfg):
         from roamstat import motion  # the Kalman-filter models; imported only when this null runs
+        from roamstat.motion.fit import MIN_FIXES
 
         t = pd.to_datetime(fixes_a["time"], utc=True)
         x = pd.to_numeric(fixes_a["x_m"], errors="coerce").to_numpy(float)
@@ -69,7 +65,7 @@ class CtcrwNull:
         t_s = ((fixes["_t"] - fixes["_t"].iloc[0]) / pd.Timedelta(seconds=1)).to_numpy(float)
         table = getattr(cfg, "error_class_table", None)
         error = motion.location_error(fixes.drop(columns="_t"), getattr(cfg, "uere_m", None),
-                                      _class_table(table) if table else None)
+                                      motion.read_class_table(table) if table else None)
         unbounded = tuple(m for m in motion.MOTION_MODELS if m not in motion.RANGE_RESIDENT)
         fit = motion.best_unbounded(motion.fit_motion_models(t_s, fixes["x_m"].to_numpy(float),
                                                              fixes["y_m"].to_numpy(float), error, models=unbounded))
@@ -98,10 +94,3 @@ class CtcrwNull:
         lag = self.t_s[last] - self.t_s[0]
         error = 2.0 * (self.error_sd_m[0] ** 2 + self.error_sd_m[last] ** 2)
         return float(np.asarray(self.fit.expected_nsd(np.array([lag]))).ravel()[0] + error)
-
-
-@lru_cache(maxsize=4)
-def _class_table(path: str):
-    from roamstat import motion
-
-    return motion.read_class_table(path)
