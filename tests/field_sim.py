@@ -47,15 +47,16 @@ def ctcrw_positions(t_s, tau_v_s, speed_sd_m_s, rng, drift_m_s=(0.0, 0.0)):
     pos = np.zeros((t_s.size, 2))
     vel = rng.normal(0.0, speed_sd_m_s, 2)
     for k in range(1, t_s.size):
-        d = t_s[k] - t_s[k - 1]
-        e1, e2 = np.exp(-beta * d), np.exp(-2 * beta * d)
-        var_v = s2 * (1 - e2)
-        cov = s2 / beta * (1 - e1) ** 2
-        var_x = 2 * s2 / beta * (d - 2 * (1 - e1) / beta + (1 - e2) / (2 * beta))
-        chol = np.linalg.cholesky(np.array([[var_x, cov], [cov, var_v]]) + 1e-12 * np.eye(2))
-        z = chol @ rng.standard_normal((2, 2))  # columns: the two axes
-        pos[k] = pos[k - 1] + vel * (1 - e1) / beta + z[0]
-        vel = vel * e1 + z[1]
+        u = beta * (t_s[k] - t_s[k - 1])
+        one_e1, one_e2 = -np.expm1(-u), -np.expm1(-2 * u)
+        # u - 2(1 - e^-u) + (1 - e^-2u)/2, by its series where the terms cancel
+        g = u ** 3 / 3 - u ** 4 / 4 if u < 1e-3 else u - 2 * one_e1 + one_e2 / 2
+        var_v, cov, var_x = s2 * one_e2, s2 / beta * one_e1 ** 2, 2 * s2 / beta ** 2 * g
+        # the 2 x 2 Cholesky factor written out (stable when the gap is tiny); the two axes independent
+        z_v = np.sqrt(var_v) * rng.standard_normal(2)
+        z_x = cov / var_v * z_v + np.sqrt(max(var_x - cov ** 2 / var_v, 0.0)) * rng.standard_normal(2)
+        pos[k] = pos[k - 1] + vel * one_e1 / beta + z_x
+        vel = vel * (1 - one_e1) + z_v
     return pos + np.outer(t_s - t_s[0], drift_m_s)
 
 
@@ -137,3 +138,45 @@ def observe(t_s, true_xy, error_sd_m, rng, quality=None, animal_id="sim"):
     steps = pd.DataFrame({"animal_id": animal_id, "segment": segment[:-1], "dt_s": dt, "step_m": np.hypot(dx, dy),
                           "heading_rad": heading, "turn_rad": turn, "interp_s": 0.0})[same].reset_index(drop=True)
     return fixes, steps, nominal
+
+
+# --- the calibration scenarios (tests/test_nulls_field.py, benchmarks/field_calibration.py) ---------
+
+#: Location-quality classes of the simulated tags and their per-axis error SD (m); the generator's own
+#: truth, handed to the null through --error-classes (invented for the simulation).
+CLASSES = {"H": 15.0, "M": 40.0, "L": 100.0}
+CLASS_SHARE = (0.4, 0.4, 0.2)
+UERE_M = 5.0
+
+
+def field_animal(kind: str, scenario: str, rng: np.random.Generator, scale: float = 1.0):
+    """Fixes, steps and nominal interval of one simulated animal (``scale`` x the scenario's duration)."""
+    quality = None
+    if scenario == "a":
+        t = regular_times(int(100 * scale))
+        sd = np.full(t.size, 25.0)
+    elif scenario == "b":
+        t = gappy_times(10 * scale, rng)
+        sd = np.full(t.size, 5.0)
+    else:
+        t = exponential_times(12 * scale, 3 * HOUR, rng)
+        quality = rng.choice(list(CLASSES), t.size, p=CLASS_SHARE)
+        sd = np.array([CLASSES[c] for c in quality])
+    movement = {
+        "crw": lambda: crw_positions(t, HOUR, 60.0, 2.0, rng),  # ~60 m hourly steps, kappa 2
+        "ctcrw": lambda: ctcrw_positions(t, 2 * HOUR, 0.025, rng),  # tau_v 2 h, speed SD 2.5 cm/s per axis
+        "resident": lambda: ou_positions(t, HOUR / 2, 300.0, rng),  # OU home range, tau 30 min, sigma 300 m
+        # tortuous at the hour scale (tau_v 20 min), 90 m/h eastward on average
+        "traveller": lambda: ctcrw_positions(t, HOUR / 3, 0.05, rng, drift_m_s=(0.025, 0.0)),
+    }[kind]()
+    fixes, steps, nominal = observe(t, movement, sd, rng, quality=quality)
+    if quality is None:
+        fixes["dop"] = sd / UERE_M
+    return fixes, steps, nominal
+
+
+def write_class_table(path) -> str:
+    """The ``class,sd_m`` CSV of :data:`CLASSES` at ``path`` (for ``Config.error_class_table``)."""
+    with open(path, "w", encoding="utf-8") as fh:
+        fh.write("class,sd_m\n" + "".join(f"{k},{v}\n" for k, v in CLASSES.items()))
+    return str(path)

@@ -22,61 +22,29 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from field_sim import (HOUR, crw_positions, ctcrw_positions, exponential_times, gappy_times, observe,
-                       ou_positions, regular_times)
+from field_sim import UERE_M, field_animal, write_class_table
 from roamstat import compare
 from roamstat.config import Config
 from roamstat.models import fit_animal
 
 pytestmark = pytest.mark.slow
 ALPHA = 0.05
-N_ANIMALS = 100
-#: Location-quality classes of the simulated tags and their per-axis error SD (m); the generator's own
-#: truth, handed to the null through --error-classes (invented for the simulation).
-CLASSES = {"H": 15.0, "M": 40.0, "L": 100.0}
-CLASS_SHARE = (0.4, 0.4, 0.2)
-UERE_M = 5.0
-
-
-def field_animal(kind: str, scenario: str, rng: np.random.Generator):
-    """Fixes, steps and nominal interval of one simulated animal."""
-    quality = None
-    if scenario == "a":
-        t = regular_times(100)
-        sd = np.full(t.size, 25.0)
-    elif scenario == "b":
-        t = gappy_times(10, rng)
-        sd = np.full(t.size, 5.0)
-    else:
-        t = exponential_times(12, 3 * HOUR, rng)
-        quality = rng.choice(list(CLASSES), t.size, p=CLASS_SHARE)
-        sd = np.array([CLASSES[c] for c in quality])
-    movement = {
-        "crw": lambda: crw_positions(t, HOUR, 60.0, 2.0, rng),  # ~60 m hourly steps, kappa 2
-        "ctcrw": lambda: ctcrw_positions(t, 2 * HOUR, 0.025, rng),  # tau_v 2 h, speed SD 2.5 cm/s per axis
-        "resident": lambda: ou_positions(t, 6 * HOUR, 300.0, rng),  # OU home range, tau 6 h, sigma 300 m
-        "traveller": lambda: ctcrw_positions(t, 2 * HOUR, 0.025, rng, drift_m_s=(0.03, 0.0)),  # ~108 m/h east
-    }[kind]()
-    fixes, steps, nominal = observe(t, movement, sd, rng, quality=quality)
-    if quality is None:
-        fixes["dop"] = sd / UERE_M
-    return fixes, steps, nominal
+N_ANIMALS = 150  # the 99 % band of the count of p <= 0.05 is then 2-15: a test that never rejects fails
 
 
 @pytest.fixture(scope="module")
 def class_table(tmp_path_factory):
-    path = tmp_path_factory.mktemp("classes") / "classes.csv"
-    path.write_text("class,sd_m\n" + "".join(f"{k},{v}\n" for k, v in CLASSES.items()))
-    return str(path)
+    return write_class_table(tmp_path_factory.mktemp("classes") / "classes.csv")
 
 
-def deployment(kind, scenario, nulls, n, seed, class_table):
+def deployment(kind, scenario, nulls, n, seed, class_table, scale=1.0):
+    """The finalised null-test table of ``n`` simulated animals (fitted step models only when needed)."""
     cfg = Config(replicates=199, nulls=nulls, alpha=ALPHA, uere_m=UERE_M, error_class_table=class_table)
     step_based = any(n != "ctcrw" for n in nulls)
     parts = []
     for i in range(n):
         rng = np.random.default_rng([seed, i])
-        fixes, steps, nominal = field_animal(kind, scenario, rng)
+        fixes, steps, nominal = field_animal(kind, scenario, rng, scale)
         fits = fit_animal(steps, cfg, rng) if step_based else None
         rows, _ = compare.test_animal(fixes, steps, fits, nominal, cfg, rng)
         rows.insert(0, "animal_id", f"sim-{i:03d}")
@@ -104,24 +72,42 @@ def assert_calibrated(rows: pd.DataFrame, n: int):
         assert 0.95 < ratio < 1.05
 
 
-@pytest.mark.parametrize("kind", ["ctcrw", "crw"])
-@pytest.mark.parametrize("scenario", ["a", "b", "c"])
+@pytest.mark.parametrize("kind,scenario", [("ctcrw", "a"), ("ctcrw", "b"), ("ctcrw", "c"), ("crw", "a"), ("crw", "c")])
 def test_ctcrw_null_holds_its_level_under_error_gaps_and_irregular_times(kind, scenario, class_table):
+    # not offered as valid: discrete-CRW animals (straight hourly legs) with gaps and only 5 m error, where
+    # the continuous-time model misses the legs' shape and p_curve rejects 10-15 % (docs/nulls.md)
     table = deployment(kind, scenario, ("ctcrw",), N_ANIMALS, 1300 + ord(scenario) + 10 * len(kind), class_table)
     assert_calibrated(table, N_ANIMALS)
     assert table["note"].str.contains({"a": "dop_uere", "b": "dop_uere", "c": "quality_class"}[scenario]).all()
 
 
-def test_step_based_nulls_hold_their_level_on_crw_animals_with_missed_fixes(class_table):
+def test_step_based_nulls_under_missed_fixes_no_longer_lean_closer(class_table):
+    # Before the one-interval fits, a gap was fitted as one step and walked as k: the null travelled too
+    # far and every false positive was "closer".  Now "closer" is no longer the dominant side (fair coin,
+    # 99 % band) and the walk's Kareiva-Shigesada expectation matches its simulation.  The rate itself is
+    # 7-11 %, leaning "farther" (the 5 m error blurs the turns; docs/nulls.md), so the step-based nulls
+    # are not offered as exact under field sampling; tests/test_nulls_gaps.py checks the walk's NSD
+    # against the truth.
     table = deployment("crw", "b", ("crw", "shuffle"), N_ANIMALS, 1400, class_table)
     for _, rows in table.groupby("null_model"):
-        assert_calibrated(rows, N_ANIMALS)
+        tested = rows[rows["p_value"].notna()]
+        assert len(tested) >= 0.95 * N_ANIMALS
+        hit = tested[tested["p_value"] <= ALPHA]
+        closer = int((hit["observed_net_m"] < hit["null_median_m"]).sum())
+        assert len(hit) >= stats.binom.interval(0.99, len(tested), ALPHA)[0]
+        assert closer <= stats.binom.interval(0.99, len(hit), 0.5)[1], (closer, len(hit))
+        ratio = (tested["expected_nsd_m2"] / tested["simulated_mean_nsd_m2"]).mean()
+        assert np.isnan(ratio) or 0.95 < ratio < 1.05
 
 
 @pytest.mark.parametrize("scenario", ["a", "b", "c"])
 def test_residents_are_closer_and_travellers_farther_under_the_ctcrw_null(scenario, class_table):
+    # power: the endpoint test calls a home range "closer" only once the record is long against its time
+    # scale (tau 30 min), hence about a month of fixes; the unbounded null never becomes the resident model
     n = 30
-    residents = deployment("resident", scenario, ("ctcrw",), n, 1500 + ord(scenario), class_table)
+    month = {"a": 7.0, "b": 3.0, "c": 3.0}[scenario]  # about a month of record (700 h, 30 days, 36 days)
+    residents = deployment("resident", scenario, ("ctcrw",), n, 1500 + ord(scenario), class_table, scale=month)
+    assert not residents["note"].str.contains("null model ou").any()
     assert (residents["verdict"] == "closer").mean() >= 0.9
     travellers = deployment("traveller", scenario, ("ctcrw",), n, 1600 + ord(scenario), class_table)
     assert (travellers["verdict"] == "farther").mean() >= 0.9
