@@ -88,6 +88,14 @@ _OPTIONS = (
         ("--alpha", dict(type=float, default=Config.alpha,
                          help=f"significance level for verdicts, on q-values (default {Config.alpha})")),
     ), _TESTING),
+    ("location error and smoothing (motion models)", (
+        ("--uere", dict(type=float, metavar="M", help="user-equivalent range error (m): location error SD = DOP x M "
+                                                      "(default: from location-quality classes, else estimated)")),
+        ("--error-classes", dict(metavar="CSV", help="location-quality class -> error SD table "
+                                                     "(header class,sd_m), overriding the built-in one")),
+        ("--predict", dict(metavar="INTERVAL", help="also give smoothed positions on a regular grid "
+                                                    "(e.g. 1h) in track_smoothed.csv")),
+    ), _PER_ANIMAL),
     ("home ranges", (
         ("--kde-bandwidth", dict(type=float, metavar="M",
                                  help="kernel bandwidth in metres (default: reference bandwidth)")),
@@ -171,7 +179,8 @@ def command_list() -> str:
 
 
 #: Config field -> argparse destination, where the two differ.
-_DEST = {"disabled_rules": "keep", "nulls": "null", "output_format": "format", "report": "no_report"}
+_DEST = {"disabled_rules": "keep", "nulls": "null", "output_format": "format", "report": "no_report",
+         "uere_m": "uere", "error_class_table": "error_classes"}
 
 
 def config_from_args(args: argparse.Namespace) -> Config:
