@@ -24,9 +24,11 @@ COMMANDS = {
     "inspect": "print what roamstat detects in the files (columns, animals, schedule, projection); writes nothing",
     "clean": "screen fixes: fixes.csv and rejected.csv (a reason for every dropped row)",
     "steps": "clean, then step lengths and turning angles: steps.csv and summary.csv",
-    "fit": "steps, then step-length and turning-angle models: fits.csv",
+    "fit": "steps, then step-length and turning-angle models and continuous-time motion models: fits.csv, "
+           "motion_models.csv, track_smoothed.csv",
     "nulltest": "fit, then random-walk null models and displacement tests: null_tests.csv",
-    "ranges": "steps, then residency classes and MCP/KDE home ranges: residency.csv, ranges.csv, ranges.geojson",
+    "ranges": "steps, then motion models, residency classes and home ranges (MCP, KDE, autocorrelation-aware): "
+              "motion_models.csv, track_smoothed.csv, residency.csv, ranges.csv, ranges.geojson",
     "run": "the whole job: every table, report.html with figures, manifest.json",
 }
 
