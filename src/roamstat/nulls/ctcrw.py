@@ -46,7 +46,7 @@ class CtcrwNull:
     Raises
     ------
     NullUnavailable
-        Too few fixes, or no unbounded model could be fitted.
+        Too few fixes, all fixes at one position, or no unbounded model could be fitted.
     """
 
     in_time = True  # compared at the fixes' own times, not on nominal step indices
@@ -62,6 +62,8 @@ class CtcrwNull:
         fixes = fixes_a[good].assign(_t=t[good]).sort_values("_t", kind="stable")
         if len(fixes) < MIN_FIXES:
             raise NullUnavailable(f"{len(fixes)} fixes, fewer than the {MIN_FIXES} a motion model needs")
+        if np.ptp(x[good]) == 0 and np.ptp(y[good]) == 0:
+            raise NullUnavailable("all fixes at one position: no movement to model")
         t_s = ((fixes["_t"] - fixes["_t"].iloc[0]) / pd.Timedelta(seconds=1)).to_numpy(float)
         table = getattr(cfg, "error_class_table", None)
         error = motion.location_error(fixes.drop(columns="_t"), getattr(cfg, "uere_m", None),
