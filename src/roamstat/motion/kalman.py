@@ -45,7 +45,7 @@ MOVEMENT_PARAMS = {
     "ctcrw": ("diffusion_m2_s", "tau_velocity_s"),
     "ou_ctcrw": ("sigma_m", "tau_position_s", "tau_velocity_s"),
 }
-# below this dt/tau_v the ctcrw position variance uses its Taylor series (the closed form
+# below this dt/tau_v the ctcrw position variances use their Taylor series (the closed form
 # loses digits to cancellation there)
 _SERIES_X = 1e-3
 
@@ -146,10 +146,11 @@ def transition(name: str, p: dict, dt: np.ndarray) -> tuple[np.ndarray, np.ndarr
         Q[:, 1, 1] = -velocity_var * np.expm1(-2.0 * dt / tau)
     elif name == "ou_ctcrw":
         F = _ouf_propagator(p, dt)
-        S = stationary_cov(name, p)
-        Q = S - np.einsum("nij,jk,nlk->nil", F, S, F)  # stationarity: Q = S - F S F'
-        Q[:, 0, 0] = np.maximum(Q[:, 0, 0], 0.0)
-        Q[:, 1, 1] = np.maximum(Q[:, 1, 1], 0.0)
+        # stationarity: Q = S - F S F' with S = diag(s0, s1)
+        s0, s1 = np.diag(stationary_cov(name, p))
+        Q[:, 0, 0] = np.maximum(s0 - (F[:, 0, 0] ** 2 * s0 + F[:, 0, 1] ** 2 * s1), 0.0)
+        Q[:, 0, 1] = Q[:, 1, 0] = -(F[:, 0, 0] * F[:, 1, 0] * s0 + F[:, 0, 1] * F[:, 1, 1] * s1)
+        Q[:, 1, 1] = np.maximum(s1 - (F[:, 1, 0] ** 2 * s0 + F[:, 1, 1] ** 2 * s1), 0.0)
     else:
         check_model(name)
     return F, Q
@@ -164,8 +165,11 @@ def semivariance(name: str, p: dict, lag_s) -> np.ndarray:
     if name == "brownian":
         return p["diffusion_m2_s"] * lag
     if name == "ctcrw":
+        # D [lag - tau (1 - e^{-lag/tau})]: velocity started from its stationary law
         tau = p["tau_velocity_s"]
-        return 0.5 * _ctcrw_position_var(p["diffusion_m2_s"], tau, lag)
+        x = lag / tau
+        small = x**2 / 2.0 - x**3 / 6.0 + x**4 / 24.0
+        return p["diffusion_m2_s"] * tau * np.where(x < _SERIES_X, small, x + np.expm1(-x))
     return p["sigma_m"] ** 2 * (1.0 - position_acf(name, p, lag))
 
 

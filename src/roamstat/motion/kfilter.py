@@ -24,7 +24,7 @@ MIN_VAR_M2 = 1e-9
 
 
 @numba.njit(cache=True)
-def forward(F, Q, r, observed, Y, P_first, update_first):
+def forward(F, Q, r, observed, Y, P_first, update_first, store=True):
     """Run the filter through every time.
 
     Parameters
@@ -42,20 +42,25 @@ def forward(F, Q, r, observed, Y, P_first, update_first):
     update_first : bool
         Whether the observation at time 0 updates the state (False when P_first already
         conditions on it).
+    store : bool
+        Keep the predicted and filtered moments (for the smoother); the likelihood needs only
+        V and S, and skipping the stores keeps its memory traffic small on long tracks.
 
     Returns
     -------
     V : ndarray (n, k)   innovations (0 where there is no update)
     S : ndarray (n,)     innovation variances (NaN where there is no update)
     mp, Pp, mf, Pf :     predicted and filtered means (n, k, 2) and covariances (n, 2, 2)
+                         (length 0 when not stored)
     """
     n, k = Y.shape
     V = np.zeros((n, k))
     S = np.full(n, np.nan)
-    mp = np.zeros((n, k, 2))
-    mf = np.zeros((n, k, 2))
-    Pp = np.zeros((n, 2, 2))
-    Pf = np.zeros((n, 2, 2))
+    n_kept = n if store else 0
+    mp = np.zeros((n_kept, k, 2))
+    mf = np.zeros((n_kept, k, 2))
+    Pp = np.zeros((n_kept, 2, 2))
+    Pf = np.zeros((n_kept, 2, 2))
     m = np.zeros((k, 2))
     p00, p01, p11 = P_first[0, 0], P_first[0, 1], P_first[1, 1]
     for i in range(n):
@@ -73,8 +78,9 @@ def forward(F, Q, r, observed, Y, P_first, update_first):
             p00, p01, p11 = (t00 * f00 + t01 * f01 + Q[i, 0, 0],
                              t00 * f10 + t01 * f11 + Q[i, 0, 1],
                              t10 * f10 + t11 * f11 + Q[i, 1, 1])
-        mp[i] = m
-        Pp[i, 0, 0], Pp[i, 0, 1], Pp[i, 1, 0], Pp[i, 1, 1] = p00, p01, p01, p11
+        if store:
+            mp[i] = m
+            Pp[i, 0, 0], Pp[i, 0, 1], Pp[i, 1, 0], Pp[i, 1, 1] = p00, p01, p01, p11
         if observed[i] and (i > 0 or update_first):
             s = max(p00 + r[i], MIN_VAR_M2)
             k0, k1 = p00 / s, p01 / s
@@ -85,8 +91,9 @@ def forward(F, Q, r, observed, Y, P_first, update_first):
                 m[c, 1] += k1 * v
             p00, p01, p11 = p00 - k0 * p00, p01 - k0 * p01, p11 - k1 * p01
             S[i] = s
-        mf[i] = m
-        Pf[i, 0, 0], Pf[i, 0, 1], Pf[i, 1, 0], Pf[i, 1, 1] = p00, p01, p01, p11
+        if store:
+            mf[i] = m
+            Pf[i, 0, 0], Pf[i, 0, 1], Pf[i, 1, 0], Pf[i, 1, 1] = p00, p01, p01, p11
     return V, S, mp, Pp, mf, Pf
 
 

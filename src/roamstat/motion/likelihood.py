@@ -88,7 +88,7 @@ def conditional_loglik(name: str, p: dict, track: Track, mean_xy=None) -> tuple[
         mean = np.asarray(mean_xy, dtype=float)
         Y = track.xy - (mean - track.origin)
     observed = np.ones(track.n, dtype=np.bool_)
-    V, S, *_ = forward(F, Q, r, observed, np.ascontiguousarray(Y), P0, resident)
+    V, S, *_ = forward(F, Q, r, observed, np.ascontiguousarray(Y), P0, resident, False)
     V, S = V[1:], S[1:]
     if resident and mean_xy is None:
         w1 = V[:, 2] / S

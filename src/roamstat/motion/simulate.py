@@ -15,15 +15,15 @@ _CHUNK = 256  # time steps of normal deviates drawn at once (memory stays flat)
 
 
 @numba.njit(cache=True)
-def _propagate(F, L, z, state, out):
+def _propagate(F, L, z0, z1, state, out):
     """Advance ``state`` (2, reps, axes) through each step, writing positions to ``out``."""
     for i in range(F.shape[0]):
         for rep in range(state.shape[1]):
             for ax in range(2):
                 pos, vel = state[0, rep, ax], state[1, rep, ax]
-                z0, z1 = z[i, 0, rep, ax], z[i, 1, rep, ax]
-                state[0, rep, ax] = F[i, 0, 0] * pos + F[i, 0, 1] * vel + L[i, 0, 0] * z0
-                state[1, rep, ax] = F[i, 1, 0] * pos + F[i, 1, 1] * vel + L[i, 1, 0] * z0 + L[i, 1, 1] * z1
+                a, b = z0[i, rep, ax], z1[i, rep, ax]
+                state[0, rep, ax] = F[i, 0, 0] * pos + F[i, 0, 1] * vel + L[i, 0, 0] * a
+                state[1, rep, ax] = F[i, 1, 0] * pos + F[i, 1, 1] * vel + L[i, 1, 0] * a + L[i, 1, 1] * b
                 out[rep, i, ax] = state[0, rep, ax]
 
 
@@ -66,10 +66,13 @@ def simulate(fit, t_s, n_reps: int, rng: np.random.Generator, error_sd_m=None) -
     state = np.stack([L0[0, 0] * z[0], L0[1, 0] * z[0] + L0[1, 1] * z[1]])  # (pos/vel, rep, axis)
     out = np.empty((n_reps, t.size, 2))
     out[:, 0] = state[0]
+    # models without a velocity (brownian, ou) need one deviate per step, not two
+    no_velocity = np.zeros((_CHUNK, n_reps, 2)) if fit.name in ("brownian", "ou") else None
     for start in range(1, t.size, _CHUNK):
         stop = min(start + _CHUNK, t.size)
-        z = rng.standard_normal((stop - start, 2, n_reps, 2))
-        _propagate(F[start:stop], L[start:stop], z, state, out[:, start:stop])
+        z0 = rng.standard_normal((stop - start, n_reps, 2))
+        z1 = rng.standard_normal(z0.shape) if no_velocity is None else no_velocity[: stop - start]
+        _propagate(F[start:stop], L[start:stop], z0, z1, state, out[:, start:stop])
     if fit.range_resident:
         out += np.asarray(fit.centre_xy)
     if error_sd_m is not None:
