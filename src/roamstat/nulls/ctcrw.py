@@ -50,7 +50,7 @@ class CtcrwNull:
     Raises
     ------
     NullUnavailable
-        Too few fixes, or no unbounded model could be fitted.
+        Too few fixes, all fixes at one position, or no unbounded model could be fitted.
     """
 
     in_time = True  # compared at the fixes' own times, not on nominal step indices
@@ -62,9 +62,10 @@ class CtcrwNull:
 
         if motion is None:
             unbounded = tuple(m for m in models.MOTION_MODELS if m not in models.RANGE_RESIDENT)
-            motion = fit_animal_motion(_in_time_order(fixes_a), cfg, models=unbounded)
-        if motion.t_s.size < MIN_FIXES:
-            raise NullUnavailable(f"{motion.t_s.size} fixes, fewer than the {MIN_FIXES} a motion model needs")
+            fixes = _in_time_order(fixes_a)
+            _check_movement(fixes["x_m"].to_numpy(float), fixes["y_m"].to_numpy(float), MIN_FIXES)
+            motion = fit_animal_motion(fixes, cfg, models=unbounded)
+        _check_movement(motion.x_m, motion.y_m, MIN_FIXES)
         fit = motion.best_unbounded
         if fit is None:
             raise NullUnavailable("no unbounded motion model (brownian, ctcrw) could be fitted")
@@ -90,6 +91,14 @@ class CtcrwNull:
         lag = self.t_s[last] - self.t_s[0]
         error = 2.0 * (self.error_sd_m[0] ** 2 + self.error_sd_m[last] ** 2)
         return float(np.asarray(self.fit.expected_nsd(np.array([lag]))).ravel()[0] + error)
+
+
+def _check_movement(x: np.ndarray, y: np.ndarray, min_fixes: int) -> None:
+    """Raise NullUnavailable for too few fixes or a track that never moves."""
+    if x.size < min_fixes:
+        raise NullUnavailable(f"{x.size} fixes, fewer than the {min_fixes} a motion model needs")
+    if np.ptp(x) == 0 and np.ptp(y) == 0:
+        raise NullUnavailable("all fixes at one position: no movement to model")
 
 
 def _in_time_order(fixes_a: pd.DataFrame) -> pd.DataFrame:
