@@ -37,6 +37,7 @@ MOTION_COLUMNS = ["model", "n_params", "aicc", "delta_aicc", "best", "diffusion_
                   "tau_velocity_s", "error_sd_m", "error_source"]
 AREA_METHODS = ("mcp", "kde", "kde_autocorr", "gaussian")
 AREA_LEVEL = 95
+AREA_COLUMNS = ("method", "area_km2", "area_low_km2", "area_high_km2", "n_fixes", "n_effective")
 #: 95 % radius of an isotropic 2-D Gaussian in per-axis SDs: sqrt(chi-square_2 quantile 0.95).
 CIRCLE_95 = math.sqrt(-2.0 * math.log(0.05))
 MAX_CIRCLES = 150  # the largest errors only, so the figure stays readable (judgement)
@@ -84,7 +85,7 @@ def areas_html(ranges_a: pd.DataFrame, models_a: pd.DataFrame) -> str:
     """The 95 % areas of the four methods with their intervals, and which one to cite."""
     rows = ranges_a[(ranges_a["method"].isin(AREA_METHODS)) & (pd.to_numeric(ranges_a["level"]) == AREA_LEVEL)]
     rows = rows.set_index("method").reindex([m for m in AREA_METHODS if m in set(rows["method"])]).reset_index()
-    shown = rows[["method", "area_km2", "area_low_km2", "area_high_km2", "n_fixes", "n_effective"]]
+    shown = rows[[c for c in AREA_COLUMNS if c in rows.columns]]  # older tables lack the interval columns
     return (f"<h4>Home-range areas ({AREA_LEVEL} %) side by side</h4>" + table(shown)
             + f'<p class="meta">{esc(which_area(rows, models_a))}</p>')
 
@@ -95,13 +96,15 @@ def which_area(rows: pd.DataFrame, models_a: pd.DataFrame) -> str:
     best = str(best.iloc[0]) if len(best) else None
     by_method = rows.set_index("method")
     autocorr = by_method.loc["kde_autocorr"] if "kde_autocorr" in by_method.index else None
+    if autocorr is not None:
+        autocorr = autocorr.reindex(AREA_COLUMNS[1:]).astype(float)
     if best is None:
         return ("No motion model could be fitted, so no area accounts for autocorrelation: the mcp and kde "
                 "areas only describe where these fixes fell and are likely too small for the animal's range.")
-    if autocorr is None or not np.isfinite(pd.to_numeric(autocorr["area_km2"])):
+    if autocorr is None or not np.isfinite(autocorr["area_km2"]):
         return (f"Cite no area as a home range: the best motion model ({best}) is not range-resident over the "
                 "tracking period, so there is no stationary home range; mcp and kde only outline the fixes.")
-    n_eff = float(pd.to_numeric(autocorr["n_effective"]))
+    n_eff = float(autocorr["n_effective"])
     sentence = (f"Cite kde_autocorr, {fmt(float(autocorr['area_km2']))} km² (95 % CI "
                 f"{fmt(float(autocorr['area_low_km2']))}–{fmt(float(autocorr['area_high_km2']))}): its bandwidth "
                 f"and interval account for the autocorrelation of the fixes (best model {best}, about "
