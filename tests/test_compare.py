@@ -129,7 +129,7 @@ def test_test_animal_rows_curves_and_the_kareiva_shigesada_self_check():
     assert 0 < crw["p_value"] <= 1 and 0 < crw["p_curve"] <= 1
     assert levy["p_value"] != levy["p_value"] and "no fitted power-law tail" in levy["note"]
     assert set(curves) == {"crw", "shuffle"}
-    c = curves["crw"]
+    c = curves["crw"].as_dict()
     assert {k: len(v) for k, v in c.items()} == {k: 81 for k in ("step", "t_s", "observed_m2", "lo_m2", "hi_m2",
                                                                   "mean_m2")}
     assert np.all(c["lo_m2"] <= c["mean_m2"]) and np.all(c["mean_m2"] <= c["hi_m2"] + 1e-9)

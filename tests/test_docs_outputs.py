@@ -12,6 +12,8 @@ import pytest
 from roamstat import compare, track
 from roamstat.cli import main
 from roamstat.models import COLUMNS as FIT_COLUMNS
+from roamstat.motion import TABLE_COLUMNS as MOTION_COLUMNS
+from roamstat.motion.animal import SMOOTHED_COLUMNS
 from roamstat.ranges.estimate import ROW_COLUMNS as RANGE_COLUMNS
 from roamstat.ranges.residency import MODELS, finalise_residency, residency_animal
 from roamstat.screen import REJECTED_FRONT
@@ -71,6 +73,14 @@ def test_table_columns_match_the_docs(section, columns):
     optional = {"tag"} if section == "summary.csv" else set()
     assert documented(section) - optional == set(columns)
     assert len(set(columns)) == len(columns)
+
+
+def test_motion_tables_match_the_docs():
+    # motion_models.csv documents the standard errors as one row `*_se` (one per parameter)
+    se = {c for c in MOTION_COLUMNS if c.endswith("_se")}
+    assert documented("motion_models.csv") == {"animal_id", *(set(MOTION_COLUMNS) - se), "*_se"}
+    # track_smoothed.csv gains `masked` (and loses lat, lon) with --mask-locations
+    assert documented("track_smoothed.csv") == {*SMOOTHED_COLUMNS, "masked"}
 
 
 def test_residency_columns_match_the_docs():

@@ -74,3 +74,17 @@ def test_density_cdf_moments_and_samples_agree(vm_turns, fit):
     assert np.all((draws > -math.pi) & (draws <= math.pi))
     assert stats.kstest(draws, model.cdf).pvalue > 0.01  # scipy.stats.kstest, fixed seed
     assert np.mean(np.cos(draws)) == pytest.approx(model.mean_cos(), abs=0.05)
+
+
+def test_wrapped_cauchy_stops_at_its_bound_on_degenerate_turns():
+    # half the turns exactly 0 (points on straight lines): the likelihood grows without limit as rho -> 1
+    # (a point mass at 0; Mardia & Jupp 2000, §3.5.7), so the fit must stop at RHO_MAX and say so
+    from roamstat.models.turns import RHO_MAX
+
+    rng = np.random.default_rng(11)
+    turns = np.r_[np.zeros(100), rng.uniform(-math.pi, math.pi, 100)]
+    model = fit_wrapped_cauchy(turns)
+    assert model.params["rho"] == pytest.approx(RHO_MAX) and model.at_bound
+    # ordinary data stay inside, away from the bound: scipy's wrapcauchy samples with rho 0.6
+    ordinary = fit_wrapped_cauchy(stats.wrapcauchy.rvs(0.6, size=400, random_state=rng))
+    assert not ordinary.at_bound and abs(ordinary.params["rho"] - 0.6) < 0.06

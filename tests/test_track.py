@@ -242,6 +242,11 @@ def test_resampling_interpolates_along_the_geodesic_on_an_hourly_grid():
     np.testing.assert_allclose(steps["step_m"], spacing / 2, atol=1e-6)
     np.testing.assert_allclose(steps["dt_s"], 3600)
     np.testing.assert_allclose(steps["turn_rad"].iloc[1:], 0, atol=1e-9)
+    # interp_s: grid times 02:00, 03:00, ... lie 50 or 10 min from the nearest fix; each step's farther end is 50 min
+    ends = np.stack([(steps[c] - T0).dt.total_seconds().to_numpy() for c in ("t_start", "t_end")])
+    nearest = np.abs(ends[..., None] - seconds).min(axis=-1).max(axis=0)
+    np.testing.assert_allclose(steps["interp_s"], nearest)
+    np.testing.assert_allclose(steps["interp_s"], 3000)
 
 
 def test_resampling_uses_fixes_on_the_grid_and_never_crosses_gaps():
@@ -317,7 +322,7 @@ def test_empty_and_single_fix_animals():
                        fixes_table("pair", [55.0, 55.1], [-3.6, -3.6], [0, 7200])])
     fixes, projections = prepare_fixes(table, Config())
     steps = compute_steps(fixes)
-    assert list(steps.columns) == ["animal_id", "segment", "t_start", "t_end", "dt_s", "step_m", "heading_rad", "turn_rad", "speed_m_s"]
+    assert list(steps.columns) == ["animal_id", "segment", "t_start", "t_end", "dt_s", "step_m", "heading_rad", "turn_rad", "speed_m_s", "interp_s"]
     summary = summarise(fixes, steps, NO_REJECTED).set_index("animal_id")
     assert summary.loc["solo", "n_steps"] == 0 and summary.loc["solo", "path_m"] == 0
     assert np.isnan(summary.loc["solo", "straightness"]) and np.isnan(summary.loc["solo", "sinuosity"])

@@ -27,9 +27,11 @@ COMMANDS = {
     "inspect": "print what roamstat detects in the files (columns, animals, schedule, projection); writes nothing",
     "clean": "screen fixes: fixes.csv and rejected.csv (a reason for every dropped row)",
     "steps": "clean, then step lengths and turning angles: steps.csv and summary.csv",
-    "fit": "steps, then step-length and turning-angle models: fits.csv",
+    "fit": "steps, then step-length and turning-angle models and continuous-time motion models: fits.csv, "
+           "motion_models.csv, track_smoothed.csv",
     "nulltest": "fit, then random-walk null models and displacement tests: null_tests.csv",
-    "ranges": "steps, then residency classes and MCP/KDE home ranges: residency.csv, ranges.csv, ranges.geojson",
+    "ranges": "steps, then motion models, residency classes and home ranges (MCP, KDE, autocorrelation-aware): "
+              "motion_models.csv, track_smoothed.csv, residency.csv, ranges.csv, ranges.geojson",
     "run": "the whole job: every table, report.html with figures, manifest.json",
 }
 
@@ -91,6 +93,14 @@ _OPTIONS = (
         ("--alpha", dict(type=float, default=Config.alpha,
                          help=f"significance level for verdicts, on q-values (default {Config.alpha})")),
     ), _TESTING),
+    ("location error and smoothing (motion models)", (
+        ("--uere", dict(type=float, metavar="M", help="user-equivalent range error (m): location error SD = DOP x M "
+                                                      "(default: from location-quality classes, else estimated)")),
+        ("--error-classes", dict(metavar="CSV", help="location-quality class -> error SD table "
+                                                     "(header class,sd_m), overriding the built-in one")),
+        ("--predict", dict(metavar="INTERVAL", help="also give smoothed positions on a regular grid "
+                                                    "(e.g. 1h) in track_smoothed.csv")),
+    ), _PER_ANIMAL),
     ("home ranges", (
         ("--kde-bandwidth", dict(type=float, metavar="M",
                                  help="kernel bandwidth in metres (default: reference bandwidth)")),
@@ -175,7 +185,8 @@ def command_list() -> str:
 
 
 #: Config field -> argparse destination, where the two differ.
-_DEST = {"disabled_rules": "keep", "nulls": "null", "output_format": "format", "report": "no_report"}
+_DEST = {"disabled_rules": "keep", "nulls": "null", "output_format": "format", "report": "no_report",
+         "uere_m": "uere", "error_class_table": "error_classes"}
 
 
 def config_from_args(args: argparse.Namespace) -> Config:

@@ -9,9 +9,19 @@ extreme rank length (ERL) measure (Myllymäki et al. 2017).  :func:`finalise`
 then controls the false discovery rate across the animals of a run for each
 null model (Benjamini & Hochberg 1995) and gives the verdicts.
 
-The null walk has as many steps as nominal fix intervals span the analysed
-period, so gaps in the record are walked by the null too; the fix at time t is
-compared with the walk after ``round((t - t_first) / nominal_dt_s)`` steps.
+A step-based null (crw, shuffle, levy) walks one step per nominal fix interval
+over the whole analysed period, so each gap of k missed fixes is walked as k
+steps; the fix at time t is compared with the walk after
+``round((t - t_first) / nominal_dt_s)`` steps.  The step and turn models it
+draws from are fitted on one-interval steps only (``models/fit.py``), so no
+gap is counted twice.  With ``--resample`` the interval is the grid's.  These
+nulls need fixes on the schedule (``MIN_ON_SCHEDULE``); on irregular fix times
+they are not run and the note says so.
+
+The continuous-time null (``ctcrw``, :mod:`roamstat.nulls.ctcrw`) simulates
+the animal's fitted unbounded motion model at the observed fix times
+themselves, with the fixes' own location error; its curve points are fixes,
+not step indices, and its ``n_steps`` is the number of observed intervals.
 
 References
 ----------
@@ -26,17 +36,26 @@ Global envelope tests for spatial processes. JRSS B 79: 381-404.
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
+from functools import partial
 
 import numpy as np
 import pandas as pd
 from scipy import stats
 
 from roamstat.config import NULL_MODELS
+from roamstat import rows as views
+from roamstat.models.fit import FIT_INTERVAL_TOLERANCE, on_interval
 from roamstat.nulls import NullUnavailable, build_null, short_steps
 from roamstat.split import simulate_replicates
+from roamstat.registry import NULLS
+from roamstat.track import duration_s
 
 MAX_CURVE_POINTS = 200  # NSD curve evaluated at most here (memory and figure size, no source)
 ENVELOPE = (0.025, 0.975)  # pointwise and endpoint central 95 % interval
+#: Share of fixes within FIT_INTERVAL_TOLERANCE of the nominal schedule that a step-based null needs (missed
+#: fixes keep the schedule, irregular fix times do not; judgement, checked by tests/test_nulls_field.py).
+MIN_ON_SCHEDULE = 0.8
 
 ROW_COLUMNS = ["null_model", "n_steps", "observed_net_m", "null_median_m", "null_q025_m", "null_q975_m",
                "p_farther", "p_closer", "p_value", "p_curve", "expected_nsd_m2", "simulated_mean_nsd_m2", "note"]
@@ -148,6 +167,59 @@ def bh_qvalues(p) -> np.ndarray:
 
 # --- one animal ------------------------------------------------------------------
 
+@dataclass(frozen=True)
+class NullCurve:
+    """The observed NSD curve of one animal against one null's simulations.
+
+    Attributes
+    ----------
+    t_s : ndarray
+        Seconds since the first fix of each curve point.
+    step : ndarray or None
+        Nominal step index of each point (discrete nulls); None for the
+        continuous-time null, which lives at the fixes' own times.
+    observed_m2, lo_m2, hi_m2, mean_m2 : ndarray
+        Observed NSD, the pointwise 2.5 % / 97.5 % envelope and mean of the
+        simulated NSD (m^2), all of the length of ``t_s``.
+    """
+
+    t_s: np.ndarray
+    step: np.ndarray | None
+    observed_m2: np.ndarray
+    lo_m2: np.ndarray
+    hi_m2: np.ndarray
+    mean_m2: np.ndarray
+
+    def as_dict(self) -> dict:
+        """Plain dict of the arrays (``step`` only where there is one)."""
+        out = {"step": self.step} if self.step is not None else {}
+        out.update(t_s=self.t_s, observed_m2=self.observed_m2, lo_m2=self.lo_m2, hi_m2=self.hi_m2,
+                   mean_m2=self.mean_m2)
+        return out
+
+
+def _clean_track(fixes_a: pd.DataFrame):
+    """Seconds since the first fix, x, y (sorted by time) and the number of rows without them."""
+    t = pd.to_datetime(fixes_a["time"], utc=True)
+    x = pd.to_numeric(fixes_a["x_m"], errors="coerce").to_numpy(dtype=float)
+    y = pd.to_numeric(fixes_a["y_m"], errors="coerce").to_numpy(dtype=float)
+    good = t.notna().to_numpy() & np.isfinite(x) & np.isfinite(y)
+    if not good.any():
+        return np.empty(0), np.empty(0), np.empty(0), int(np.count_nonzero(~good)), good
+    t = t[good]
+    t_s = ((t - t.min()) / pd.Timedelta(seconds=1)).to_numpy(dtype=float)
+    order = np.argsort(t_s, kind="stable")
+    return t_s[order], x[good][order], y[good][order], int(np.count_nonzero(~good)), good
+
+
+def _thin(n: int, max_points: int) -> np.ndarray:
+    """At most ``max_points`` evenly spaced positions of 0..n-1, first and last kept."""
+    keep = np.arange(n)
+    if n > max_points:
+        keep = np.unique(np.rint(np.linspace(0, n - 1, max_points)).astype(np.int64))
+    return keep
+
+
 def observed_curve(fixes_a: pd.DataFrame, nominal_dt_s: float, max_points: int = MAX_CURVE_POINTS):
     """Step indices of the fixes and the observed NSD at (at most ``max_points``) of them.
 
@@ -165,80 +237,95 @@ def observed_curve(fixes_a: pd.DataFrame, nominal_dt_s: float, max_points: int =
     dict
         ``n_steps``, ``idx`` (step indices, increasing, from 0), ``t_s`` (seconds since the first fix),
         ``nsd_m2`` (observed NSD), ``net_m`` (first to last fix), ``n_dropped`` (fixes without time or
-        coordinates).
+        coordinates), ``on_schedule`` (share of fixes within ``FIT_INTERVAL_TOLERANCE`` of a whole
+        number of nominal intervals after the first).
     """
-    t = pd.to_datetime(fixes_a["time"], utc=True)
-    x = pd.to_numeric(fixes_a["x_m"], errors="coerce").to_numpy(dtype=float)
-    y = pd.to_numeric(fixes_a["y_m"], errors="coerce").to_numpy(dtype=float)
-    good = t.notna().to_numpy() & np.isfinite(x) & np.isfinite(y)
-    n_dropped = int(np.count_nonzero(~good))
-    if not good.any():
+    t_s, x, y, n_dropped, _ = _clean_track(fixes_a)
+    if not t_s.size:
         return {"n_steps": 0, "idx": np.empty(0, np.int64), "t_s": np.empty(0), "nsd_m2": np.empty(0),
-                "net_m": math.nan, "n_dropped": n_dropped}
-    t = t[good]
-    t_s = ((t - t.min()) / pd.Timedelta(seconds=1)).to_numpy(dtype=float)
-    order = np.argsort(t_s, kind="stable")
-    t_s, x, y = t_s[order], x[good][order], y[good][order]
+                "net_m": math.nan, "n_dropped": n_dropped, "on_schedule": math.nan}
     nsd = (x - x[0]) ** 2 + (y - y[0]) ** 2
-    step = np.rint(t_s / nominal_dt_s).astype(np.int64)
+    intervals = t_s / nominal_dt_s
+    step = np.rint(intervals).astype(np.int64)
+    on_schedule = float(np.mean(np.abs(intervals - step) <= FIT_INTERVAL_TOLERANCE))
     # the last fix at each step index (so the last index is the last fix)
     keep = np.flatnonzero(np.r_[step[1:] != step[:-1], True])
-    if keep.size > max_points:
-        keep = keep[np.unique(np.rint(np.linspace(0, keep.size - 1, max_points)).astype(np.int64))]
+    keep = keep[_thin(keep.size, max_points)]
     return {"n_steps": int(step[-1]), "idx": step[keep], "t_s": t_s[keep], "nsd_m2": nsd[keep],
-            "net_m": float(math.sqrt(nsd[-1])), "n_dropped": n_dropped}
+            "net_m": float(math.sqrt(nsd[-1])), "n_dropped": n_dropped, "on_schedule": on_schedule}
 
 
 def test_animal(fixes_a: pd.DataFrame, steps_a: pd.DataFrame, fits, nominal_dt_s: float, cfg,
-                rng: np.random.Generator) -> tuple[pd.DataFrame, dict]:
+                rng: np.random.Generator, motion=None) -> tuple[pd.DataFrame, dict]:
     """Test one animal's net displacement and NSD curve against each null in ``cfg.nulls``.
 
     Parameters
     ----------
     fixes_a : DataFrame
-        The animal's analysed fixes (``time``, ``x_m``, ``y_m``; metres in its own frame).
+        The animal's fixes (``time``, ``x_m``, ``y_m``; metres in its own frame), all rows or the
+        analysed track.  The discrete nulls use the ``on_grid`` rows (all rows without that column);
+        the continuous-time null uses the observed rows (``interpolated`` false) and their ``dop`` /
+        ``quality`` columns for the location error.
     steps_a : DataFrame
-        Its steps (``step_m``); tracks with fewer than ``cfg.min_steps_test``
+        Its steps (``step_m``, ``dt_s``, ``interp_s``); tracks with fewer than ``cfg.min_steps_test``
         finite steps are "insufficient".
     fits : AnimalFits-like
         ``best_step``, ``best_turn``, ``tail``, ``step_values``, ``turn_values``, ``note``.
     nominal_dt_s : float
-        Nominal fix interval (s): one null step per interval.
+        Nominal fix interval (s): one discrete null step per interval.  With ``cfg.resample`` the
+        grid's interval is used instead (the steps are grid steps).
     cfg : Config
-        Uses ``nulls``, ``replicates``, ``min_steps_test``, ``min_step``.
+        Uses ``nulls``, ``replicates``, ``min_steps_test``, ``min_step``, ``resample``, ``uere_m``,
+        ``error_class_table``.
     rng : numpy.random.Generator
         The animal's generator; each null gets a child generator spawned in the
         fixed order of the registry (``config.NULL_MODELS``), so a null's draws do not depend on
         which other nulls run.
+    motion : roamstat.motion.animal.AnimalMotion, optional
+        The animal's motion models, fitted on its observed fixes by the pipeline's motion stage;
+        the continuous-time null reuses them instead of fitting again (same result).
 
     Returns
     -------
     rows : DataFrame
         One row per null (columns ``ROW_COLUMNS``); ``finalise`` adds ``q_value`` and ``verdict``.
     curves : dict
-        Null name -> ``step``, ``t_s``, ``observed_m2``, ``lo_m2``, ``hi_m2``, ``mean_m2``
-        (equal-length arrays; pointwise 2.5 % / 97.5 % envelope and mean) for nulls that ran.
+        Null name -> :class:`NullCurve` for the nulls that ran.
     """
     children = dict(zip(NULL_MODELS, rng.spawn(len(NULL_MODELS))))
-    obs, problem = _observed(fixes_a, steps_a, nominal_dt_s, cfg)
-    short = short_steps(_column(steps_a, "step_m"), np.size(_values(fits, "step_values")), cfg.min_step)
+    if getattr(cfg, "resample", None):
+        nominal_dt_s = duration_s(cfg.resample, "--resample")
+    discrete = views.analysed(fixes_a)
+    observed = views.observed(fixes_a)
+    n_obs_steps = int(np.count_nonzero(np.isfinite(_column(steps_a, "step_m"))))
+    # the short steps the walks keep in proportion come from the same one-interval steps as the fits
+    short = short_steps(_column(steps_a, "step_m")[on_interval(steps_a)[0]], np.size(_values(fits, "step_values")),
+                        cfg.min_step)
     rows, curves = [], {}
     for name in cfg.nulls:
+        walk = NULLS[name].load()
+        if getattr(walk, "in_time", False):
+            obs, why = _observed_in_time(observed, cfg)
+            make = partial(walk, observed, cfg, motion)
+        else:
+            obs, why = _observed(discrete, n_obs_steps, nominal_dt_s, cfg)
+            make = partial(build_null, name, fits, short)
         row = {c: math.nan for c in ROW_COLUMNS}
         row.update(null_model=name, n_steps=obs.get("n_steps", 0), observed_net_m=obs.get("net_m", math.nan),
                    note=obs.get("note", ""))
-        null, why = None, problem
+        null = None
         if not why:
             try:
-                null = build_null(name, fits, short)
+                null = make()
             except NullUnavailable as exc:
                 why = str(exc)
         if why:
             row["note"] = _join(why, row["note"])
         else:
             row_stats, curves[name] = _one_null(null, obs, int(cfg.replicates), children[name],
-                                                getattr(cfg, "workers", 1))
+                                                cfg.workers)
             row.update(row_stats)
+            row["note"] = _join(getattr(null, "note", ""), row["note"])
         rows.append(row)
     return pd.DataFrame(rows, columns=ROW_COLUMNS), curves
 
@@ -246,9 +333,8 @@ def test_animal(fixes_a: pd.DataFrame, steps_a: pd.DataFrame, fits, nominal_dt_s
 test_animal.__test__ = False  # a pipeline function, not a pytest test
 
 
-def _observed(fixes_a, steps_a, nominal_dt_s, cfg) -> tuple[dict, str]:
-    """The observed curve and, if the track cannot be tested, why."""
-    n_obs_steps = int(np.count_nonzero(np.isfinite(_column(steps_a, "step_m"))))
+def _observed(fixes_a, n_obs_steps, nominal_dt_s, cfg) -> tuple[dict, str]:
+    """The observed curve on the nominal step indices and, if a discrete null cannot test it, why."""
     if not (isinstance(nominal_dt_s, (int, float)) and math.isfinite(nominal_dt_s) and nominal_dt_s > 0):
         return {}, "no nominal fix interval (fewer than two fixes in time)"
     if not {"time", "x_m", "y_m"} <= set(fixes_a.columns) or len(fixes_a) < 2:
@@ -259,18 +345,40 @@ def _observed(fixes_a, steps_a, nominal_dt_s, cfg) -> tuple[dict, str]:
         return obs, "fewer than two fixes with time and coordinates"
     if n_obs_steps < cfg.min_steps_test:
         return obs, f"track too short to test: {n_obs_steps} steps, fewer than the {cfg.min_steps_test} needed"
+    obs["step"] = obs["idx"]
     if obs["n_steps"] < 1:
         return obs, "the fixes span less than one nominal interval"
+    if obs["on_schedule"] < MIN_ON_SCHEDULE:
+        return obs, (f"fix times irregular: {obs['on_schedule']:.0%} of fixes on the {nominal_dt_s:g} s schedule "
+                     f"(a step-based null needs {MIN_ON_SCHEDULE:.0%}); the ctcrw null works at any fix times")
     return obs, ""
 
 
-def _one_null(null, obs: dict, replicates: int, rng: np.random.Generator, workers: int = 1) -> tuple[dict, dict]:
+def _observed_in_time(fixes_a, cfg) -> tuple[dict, str]:
+    """The observed curve at the fixes' own times and, if the continuous-time null cannot test it, why."""
+    if not {"time", "x_m", "y_m"} <= set(fixes_a.columns) or len(fixes_a) < 2:
+        return {}, "fewer than two projected fixes"
+    t_s, x, y, n_dropped, _ = _clean_track(fixes_a)
+    note = f"{n_dropped} fixes without time or coordinates ignored" if n_dropped else ""
+    if t_s.size < cfg.min_steps_test + 1:
+        return {"n_steps": max(t_s.size - 1, 0), "note": note}, (
+            f"track too short to test: {max(t_s.size - 1, 0)} steps between observed fixes, fewer than the "
+            f"{cfg.min_steps_test} needed")
+    if t_s[-1] <= 0:
+        return {"n_steps": t_s.size - 1, "note": note}, "all fixes at one time"
+    keep = _thin(t_s.size, MAX_CURVE_POINTS)
+    nsd = (x - x[0]) ** 2 + (y - y[0]) ** 2
+    return {"n_steps": t_s.size - 1, "idx": keep, "t_s": t_s[keep], "nsd_m2": nsd[keep],
+            "net_m": float(math.sqrt(nsd[-1])), "note": note, "step": None}, ""
+
+
+def _one_null(null, obs: dict, replicates: int, rng: np.random.Generator, workers: int = 1) -> tuple[dict, NullCurve]:
     idx = obs["idx"]
     nsd = simulate_replicates(null, obs["n_steps"], replicates, rng, idx, workers)
     net = np.sqrt(nsd[:, -1])
     p_farther, p_closer, p_value = monte_carlo_p(obs["net_m"], net)
     median, q025, q975 = np.quantile(net, [0.5, *ENVELOPE])
-    moving = idx > 0  # at step 0 every walk is at the start
+    moving = obs["t_s"] > 0  # at the first fix every walk is at the start
     expected = getattr(null, "expected_nsd", None)
     row = {"null_median_m": float(median), "null_q025_m": float(q025), "null_q975_m": float(q975),
            "p_farther": p_farther, "p_closer": p_closer, "p_value": p_value,
@@ -278,8 +386,8 @@ def _one_null(null, obs: dict, replicates: int, rng: np.random.Generator, worker
            "expected_nsd_m2": float(expected(obs["n_steps"])) if expected else math.nan,
            "simulated_mean_nsd_m2": float(np.mean(nsd[:, -1]))}
     lo, hi = np.quantile(nsd, ENVELOPE, axis=0)
-    curve = {"step": idx.copy(), "t_s": obs["t_s"].copy(), "observed_m2": obs["nsd_m2"].copy(),
-             "lo_m2": lo, "hi_m2": hi, "mean_m2": nsd.mean(axis=0)}
+    curve = NullCurve(t_s=obs["t_s"].copy(), step=obs["step"], observed_m2=obs["nsd_m2"].copy(), lo_m2=lo,
+                      hi_m2=hi, mean_m2=nsd.mean(axis=0))
     return row, curve
 
 

@@ -66,6 +66,10 @@ class Config:
     state_starts: int = 10  # starting points per model
     state_step_family: str = "gamma"  # or "weibull"
     state_turn_family: str = "von_mises"  # or "wrapped_cauchy"
+    # --- location error of the motion models (roamstat.motion) -----------------
+    uere_m: float | None = None  # user-equivalent range error (m): location error SD = dop x uere
+    error_class_table: str | None = None  # CSV path: location-quality class -> error SD (m)
+    predict: str | None = None  # e.g. "1h": smoothed positions also on this regular grid; None: fixes only
     # --- ranges --------------------------------------------------------------
     kde_bandwidth: float | None = None  # metres; None: reference bandwidth h_ref
     mask_locations: bool = False
@@ -103,6 +107,7 @@ OPTIONS = {
     "spike_speed": "--spike-speed", "min_quality": "--min-quality", "disabled_rules": "--keep",
     "max_gap": "--max-gap", "resample": "--resample", "min_step": "--min-step", "bootstrap": "--bootstrap",
     "nulls": "--null", "replicates": "--replicates", "seed": "--seed", "alpha": "--alpha",
+    "uere_m": "--uere", "error_class_table": "--error-classes", "predict": "--predict",
     "kde_bandwidth": "--kde-bandwidth", "mask_grid": "--mask-grid", "mask_locations": "--mask-locations",
     "workers": "--workers", "scheduler": "--scheduler", "report": "--no-report", "quiet": "--quiet",
     "force": "--force", "output_format": "--format", "low_memory": "--low-memory",
@@ -229,6 +234,13 @@ def _state_counts(value, option: str) -> None:
         _number(k, option, 1, True, 4, True, whole=True, hint="give numbers of states from 1 to 4, e.g. 1,2,3")
 
 
+def _class_table(value, option: str) -> None:
+    if value is not None:
+        from roamstat.motion.errors import read_class_table
+
+        read_class_table(value)  # a missing or malformed table is refused before anything is computed
+
+
 def _scheduler(value, option: str) -> None:
     if value is not None and (not isinstance(value, str) or "://" not in value):
         _fail(option, value, "give the Dask scheduler's address, e.g. tcp://10.0.0.5:8786")
@@ -261,6 +273,9 @@ _CHECKS: dict[str, Callable] = {
     "seed": lambda v, o: _number(v, o, 0, True, whole=True, hint="give a whole number >= 0"),
     "alpha": lambda v, o: _number(v, o, 0, False, 1, False, hint="give a level between 0 and 1, e.g. 0.05"),
     "min_steps_test": lambda v, o: _number(v, o, 2, True, whole=True, hint="give a whole number >= 2, e.g. 20"),
+    "uere_m": _positive("5"),
+    "error_class_table": _class_table,
+    "predict": _duration,
     "kde_bandwidth": _positive("500"),
     "mask_locations": _flag,
     "mask_grid": _positive("1000"),

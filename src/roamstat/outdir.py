@@ -31,7 +31,8 @@ from roamstat.manifest import MANIFEST
 
 #: Everything a roamstat command may leave in its folder.
 OUTPUT_NAMES = {f"{stem}.{ext}" for stem in ("fixes", "rejected", "steps", "summary", "fits", "null_tests",
-                                             "residency", "ranges") for ext in ("csv", "parquet")} | \
+                                             "motion_models", "track_smoothed", "residency", "ranges")
+                for ext in ("csv", "parquet")} | \
     {"ranges.geojson", "report.html", "figures", MANIFEST}
 
 _LOCK, _NEW, _OLD = ".roamstat-lock", ".roamstat-new-", ".roamstat-old-"

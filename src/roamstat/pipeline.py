@@ -33,12 +33,12 @@ if TYPE_CHECKING:  # the ranges package loads only when a command needs it
 COMMAND_STAGES = {
     "clean": (),
     "steps": ("steps",),
-    "fit": ("steps", "fit"),
-    "nulltest": ("steps", "fit", "null"),
-    "ranges": ("steps", "ranges"),
-    "run": ("steps", "fit", "null", "ranges", "report"),
+    "fit": ("steps", "motion", "fit"),
+    "nulltest": ("steps", "motion", "fit", "null"),
+    "ranges": ("steps", "motion", "ranges"),
+    "run": ("steps", "motion", "fit", "null", "ranges", "report"),
 }
-PER_ANIMAL_STAGES = ("fit", "null", "ranges")
+PER_ANIMAL_STAGES = ("motion", "fit", "null", "ranges")
 
 
 def command_stages(command: str, cfg: Config) -> tuple:
@@ -145,12 +145,15 @@ class AnimalTask:
     stages: tuple
     cfg: Config
     origin: HiddenOrigin | None = None
+    projection: str | None = None  # the animal's planar frame (CRS text), for smoothed positions' lat/lon
 
 
 def analyse_animal(task: AnimalTask) -> AnimalResult:
     """Fit models, run null tests and estimate ranges for one animal (rows per :mod:`roamstat.rows`)."""
     cfg, aid = task.cfg, task.animal_id
     result = AnimalResult(animal_id=aid)
+    if "motion" in task.stages:
+        _motion_stage(task, result)
     if "fit" in task.stages:
         from roamstat import models
 
@@ -160,8 +163,8 @@ def analyse_animal(task: AnimalTask) -> AnimalResult:
         if "null" in task.stages:
             from roamstat import compare
 
-            null_rows, curves = compare.test_animal(rows.analysed(task.fixes), task.steps, fitted, task.nominal_dt_s,
-                                                    cfg, animal_rng(cfg.seed, aid, "null"))
+            null_rows, curves = compare.test_animal(task.fixes, task.steps, fitted, task.nominal_dt_s,
+                                                    cfg, animal_rng(cfg.seed, aid, "null"), motion=result.motion)
             result.null_tests = _with_id(null_rows, aid)
             result.null_curves = curves
     if "ranges" in task.stages:
@@ -171,11 +174,47 @@ def analyse_animal(task: AnimalTask) -> AnimalResult:
         row, curve = ranges.residency_animal(located, cfg)
         result.residency = {"animal_id": aid, **row}
         result.residency_curve = curve
-        range_rows, features, extras = ranges.ranges_animal(located, cfg, task.origin)
+        range_rows, features, extras = ranges.ranges_animal(located, cfg, task.origin, model=_range_model(task, result))
         result.ranges = _with_id(pd.DataFrame(range_rows), aid)
         result.features = features
         result.range_extras = extras
     return result
+
+
+def _motion_stage(task: AnimalTask, result: AnimalResult) -> None:
+    """Fit the motion models once on the observed fixes: motion_models.csv and track_smoothed.csv rows."""
+    from roamstat.motion import motion_table
+    from roamstat.motion.animal import fit_animal_motion, smoothed_track
+    from roamstat.track import duration_s
+
+    cfg = task.cfg
+    result.motion = fit_animal_motion(rows.located(task.fixes), cfg)
+    result.motion_models = _with_id(motion_table(result.motion.fits), task.animal_id)
+    predict_s = duration_s(cfg.predict, "--predict") if cfg.predict else None
+    smoothed = smoothed_track(result.motion, task.animal_id, predict_s)
+    if len(smoothed) and task.projection is not None:
+        from roamstat.geo import unproject_xy
+
+        smoothed["lon"], smoothed["lat"] = unproject_xy(smoothed["x_m"].to_numpy(float),
+                                                        smoothed["y_m"].to_numpy(float), task.projection)
+    if cfg.mask_locations:
+        from roamstat.ranges import mask_fixes
+
+        if task.origin is None:
+            raise ValueError("masked output without the run's hidden origin (outputs.masking_origin)")
+        smoothed = mask_fixes(smoothed, task.origin)  # the run's one origin; lat, lon dropped
+    result.smoothed = smoothed
+
+
+def _range_model(task: AnimalTask, result: AnimalResult):
+    """The best motion model for the ranges, its range scale corrected for small-sample bias."""
+    from roamstat.ranges.model import debiased_fit, from_motion_fit
+
+    motion = result.motion
+    if motion is None:
+        return None
+    rng = animal_rng(task.cfg.seed, task.animal_id, "ranges")
+    return from_motion_fit(debiased_fit(motion.best, motion.t_s, motion.error, rng))
 
 
 def _with_id(table: pd.DataFrame, animal_id: str) -> pd.DataFrame:
@@ -192,7 +231,8 @@ def animal_tasks(loaded: Loaded, stages: tuple, cfg: Config) -> list[AnimalTask]
     for aid, fixes_a in loaded.fixes.groupby("animal_id", sort=True):
         steps_a = steps_by.get(aid, loaded.steps.iloc[0:0])
         tasks.append(AnimalTask(str(aid), fixes_a.reset_index(drop=True), steps_a.reset_index(drop=True),
-                                float(nominal.get(aid, float("nan"))), stages, cfg, loaded.origin))
+                                float(nominal.get(aid, float("nan"))), stages, cfg, loaded.origin,
+                                loaded.projections.get(aid)))
     return tasks
 
 
@@ -223,6 +263,12 @@ def analyse_animals(loaded: Loaded, stages: tuple, cfg: Config, executor: Animal
 def deployment_tables(animals: list[AnimalResult], stages: tuple, cfg: Config) -> dict:
     """Tables across animals: fits, null tests with q-values and verdicts, residency, ranges."""
     tables: dict = {}
+    if "motion" in stages:
+        from roamstat.motion import TABLE_COLUMNS
+        from roamstat.motion.animal import SMOOTHED_COLUMNS
+
+        tables["motion_models"] = concat_tables([a.motion_models for a in animals], ("animal_id", *TABLE_COLUMNS))
+        tables["track_smoothed"] = concat_tables([a.smoothed for a in animals], SMOOTHED_COLUMNS)
     if "fit" in stages:
         tables["fits"] = concat_tables([a.fits for a in animals])
     if "null" in stages:
@@ -233,15 +279,16 @@ def deployment_tables(animals: list[AnimalResult], stages: tuple, cfg: Config) -
         from roamstat import ranges
 
         residency = pd.DataFrame([a.residency for a in animals])
-        tables["residency"] = ranges.finalise_residency(residency, tables.get("null_tests"))
         tables["ranges"] = concat_tables([a.ranges for a in animals])
+        tables["residency"] = ranges.finalise_residency(residency, tables.get("null_tests"),
+                                                        tables.get("motion_models"), tables["ranges"])
         tables["ranges_geojson"] = ranges.feature_collection([f for a in animals for f in a.features])
     return tables
 
 
 def _import_stage_modules(stages) -> None:
     """Import the stage packages before workers start, so forked workers inherit them loaded."""
-    for stage, module in (("fit", "roamstat.models"), ("null", "roamstat.compare"), ("ranges", "roamstat.ranges")):
+    for stage, module in (("motion", "roamstat.motion"), ("fit", "roamstat.models"), ("null", "roamstat.compare"), ("ranges", "roamstat.ranges")):
         if stage in stages:
             importlib.import_module(module)
 

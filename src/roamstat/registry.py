@@ -123,6 +123,12 @@ NULLS = Registry("null model", "--null", (
           "a state-switching walk simulating the animal's fitted hidden Markov model of steps and turns "
           "(Morales et al. 2004; Langrock et al. 2012)",
           "roamstat.nulls.states:StatesNull", default=False),
+    Entry("ctcrw", "the best unbounded continuous-time motion model, simulated at the animal's own fix "
+                   "times with its location error",
+          "the animal's best unbounded continuous-time motion model (Brownian motion or the continuous-time "
+          "correlated random walk of Johnson et al. 2008, by AICc), simulated exactly at its own fix times "
+          "with each fix's location error",
+          "roamstat.nulls.ctcrw:CtcrwNull"),
 ))
 
 #: The null that stands for "an unbounded random walk with the animal's own steps and turns":

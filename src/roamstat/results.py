@@ -9,6 +9,7 @@ import pandas as pd
 
 if TYPE_CHECKING:  # the models package is heavy; results only names its type
     from roamstat.models.fit import AnimalFits
+    from roamstat.motion.animal import AnimalMotion
 
 
 @dataclass
@@ -32,3 +33,6 @@ class AnimalResult:
     null_curves: dict[str, dict] = field(default_factory=dict)
     residency_curve: dict = field(default_factory=dict)
     range_extras: object = None  # ranges.RangeExtras (a plain dict is also read by the report)
+    motion: AnimalMotion | None = None  # the fitted motion models (None when the motion stage did not run)
+    motion_models: pd.DataFrame = field(default_factory=pd.DataFrame)  # motion_models.csv rows
+    smoothed: pd.DataFrame = field(default_factory=pd.DataFrame)  # track_smoothed.csv rows (masked when asked)

@@ -65,7 +65,8 @@ MIN_SCHEDULE_SHARE = 0.25
 #: Resampling refuses to create more grid rows than this (a typo such as "1s" for "1h").
 MAX_GRID_ROWS = 20_000_000
 
-STEP_COLUMNS = ["animal_id", "segment", "t_start", "t_end", "dt_s", "step_m", "heading_rad", "turn_rad", "speed_m_s"]
+STEP_COLUMNS = ["animal_id", "segment", "t_start", "t_end", "dt_s", "step_m", "heading_rad", "turn_rad", "speed_m_s",
+                "interp_s"]
 SUMMARY_COLUMNS = [
     "animal_id", "n_fixes", "n_rejected", "first_time", "last_time", "median_dt_s", "nominal_dt_s",
     "regularity", "n_segments", "n_steps", "n_zero_steps", "path_m", "net_m", "straightness", "sinuosity",
@@ -155,7 +156,12 @@ def fix_schedule(times) -> dict:
 
 
 def _schedule_from_ns(ns_sorted: np.ndarray) -> dict:
-    dt = np.diff(ns_sorted) / 1e9
+    return schedule_of_intervals(np.diff(ns_sorted) / 1e9)
+
+
+def schedule_of_intervals(dt_s) -> dict:
+    """:func:`fix_schedule` of the intervals themselves (s; zero and NaN intervals ignored)."""
+    dt = np.asarray(dt_s, dtype=float)
     dt = dt[dt > 0]
     if dt.size == 0:
         return {"median_dt_s": np.nan, "nominal_dt_s": np.nan, "regularity": np.nan}
@@ -261,6 +267,11 @@ def duration_ns(text: str, option: str) -> int:
     if value is None or value is pd.NaT or value <= pd.Timedelta(0):
         raise RoamstatError(f"{option} {text!r} is not a positive duration; give one such as 30min, 6h or 1d")
     return int(value.value)
+
+
+def duration_s(text: str, option: str) -> float:
+    """A duration such as ``"1h"`` or ``"1d"`` in seconds; ``option`` names the flag in the error message."""
+    return duration_ns(text, option) / 1e9
 
 
 def _gap_threshold_s(cfg, nominal_dt_s: np.ndarray) -> np.ndarray:
@@ -402,6 +413,10 @@ def compute_steps(fixes: pd.DataFrame) -> pd.DataFrame:
     (-pi, pi], positive = clockwise; zero-length steps have NaN heading and
     the turns on either side of them are NaN; the first step of a segment
     has NaN turn.  Only ``on_grid`` rows are used when that column exists.
+    ``interp_s`` is, for the end of the step farther from an observation, the
+    time (s) to the nearest observed fix: 0 when both ends are observed fixes
+    (always without ``--resample``).  The step models use it to keep
+    interpolated positions out of their fits (``models/fit.py``).
 
     Parameters
     ----------
@@ -412,13 +427,14 @@ def compute_steps(fixes: pd.DataFrame) -> pd.DataFrame:
     -------
     pandas.DataFrame
         Columns ``animal_id, segment, t_start, t_end, dt_s, step_m,
-        heading_rad, turn_rad, speed_m_s``.
+        heading_rad, turn_rad, speed_m_s, interp_s``.
 
     References
     ----------
     Karney, C. F. F. (2013). Algorithms for geodesics. J. Geodesy 87, 43-55.
     """
     track = rows.analysed(fixes, ["animal_id", "segment", "time", "lat", "lon"])
+    from_fix_s = _time_to_observed_s(fixes)[rows.analysed_mask(fixes)]
     codes = pd.factorize(track["animal_id"], sort=True)[0]
     seg = track["segment"].to_numpy()
     pair = np.flatnonzero((codes[1:] == codes[:-1]) & (seg[1:] == seg[:-1]))
@@ -446,7 +462,24 @@ def compute_steps(fixes: pd.DataFrame) -> pd.DataFrame:
         "heading_rad": depart,
         "turn_rad": turn,
         "speed_m_s": speed,
+        "interp_s": np.maximum(from_fix_s[pair], from_fix_s[nxt]),
     }, columns=STEP_COLUMNS)
+
+
+def _time_to_observed_s(fixes: pd.DataFrame) -> np.ndarray:
+    """Per row, seconds to the nearest observed fix of the same animal (0 on observed fixes).
+
+    Grid rows always lie between two observed fixes of their own segment, so
+    the neighbouring observed rows in the sorted table are the right ones.
+    """
+    if "interpolated" not in fixes or not fixes["interpolated"].to_numpy(bool).any():
+        return np.zeros(len(fixes))
+    observed = ~fixes["interpolated"].to_numpy(bool)
+    ns = _as_ns(fixes["time"])
+    rows = np.arange(len(fixes))
+    before = np.maximum.accumulate(np.where(observed, rows, 0))
+    after = np.minimum.accumulate(np.where(observed, rows, len(fixes) - 1)[::-1])[::-1]
+    return np.minimum(ns - ns[before], ns[after] - ns) / 1e9
 
 
 # --------------------------------------------------------------------------- summary

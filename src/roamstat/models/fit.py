@@ -14,6 +14,20 @@ excluded count shows how much of the track that removes.  With
 left out too (a heading over a few metres of jitter is noise); they are counted
 in the turn rows' note.
 
+Steps off the nominal interval
+------------------------------
+A step and turn model describes movement over one fix interval.  Only steps
+whose ``dt_s`` lies within ``FIT_INTERVAL_TOLERANCE`` (10 %, the schedule
+tolerance of ``track.py``) of the nominal interval are fitted, and a turn only
+when both steps around it are: a step across k missed fixes is k intervals of
+movement, and the null walks that gap as k fitted steps (``compare.py``), so
+fitting it too would count the gap twice.  The nominal interval is the
+schedule of the steps' own intervals (``track.schedule_of_intervals``), so with
+``--resample`` it is the grid's interval.  Steps with an end farther than the
+same tolerance from an observed fix (``interp_s``, grid positions interpolated
+across a missed fix) are left out too: interpolated points lie on straight
+lines and give exact-zero turns.  Both counts go into the notes.
+
 Comparison sets (``comparison`` column)
 ---------------------------------------
 - ``full``: exponential, gamma, Weibull and lognormal on all step values.
@@ -84,8 +98,11 @@ from roamstat.models.select import akaike_weights, ks_statistic, vuong_test
 from roamstat.models.tail_tests import goodness_of_fit_p_value, truncation_p_value
 from roamstat.models.steps import FULL_RANGE, TAIL_REFIT, fit_step_family
 from roamstat.models.turns import TURN_FAMILIES
+from roamstat.track import SCHEDULE_TOLERANCE, schedule_of_intervals
 
 MIN_VALUES = 10  # fewest observations for any fit (common practice, no source)
+#: Relative distance from the nominal interval within which a step is fitted (the schedule tolerance).
+FIT_INTERVAL_TOLERANCE = SCHEDULE_TOLERANCE
 VUONG_P = 0.1  # significance of the sign of the Vuong statistic (Clauset et al. 2009, §5)
 GOF_P = 0.1  # a power law with gof_p <= 0.1 is ruled out (Clauset et al. 2009, §4.1)
 
@@ -220,30 +237,74 @@ def fits_table(fits_by_animal: Mapping[str, AnimalFits]) -> pd.DataFrame:
     return pd.concat(parts, ignore_index=True)
 
 
+def on_interval(steps_a: pd.DataFrame) -> tuple[np.ndarray, float, str]:
+    """Which steps span one nominal interval between observed positions.
+
+    Parameters
+    ----------
+    steps_a : DataFrame
+        One animal's steps (``dt_s`` and ``interp_s`` of the data contract; a
+        missing column counts as on schedule).
+
+    Returns
+    -------
+    mask : ndarray of bool
+        Steps within ``FIT_INTERVAL_TOLERANCE`` of the nominal interval and
+        with both ends within that tolerance of an observed fix.
+    nominal_dt_s : float
+        The nominal interval of the steps (NaN without intervals).
+    note : str
+        What was left out, "" when nothing was.
+    """
+    n = len(steps_a)
+    dt = _numeric(steps_a, "dt_s", np.nan)
+    if "dt_s" not in steps_a or not np.isfinite(dt).any():
+        return np.ones(n, dtype=bool), math.nan, ""
+    nominal = float(schedule_of_intervals(dt)["nominal_dt_s"])
+    slack = FIT_INTERVAL_TOLERANCE * nominal
+    regular = np.abs(dt - nominal) <= slack
+    observed = _numeric(steps_a, "interp_s", 0.0) <= slack
+    parts = []
+    if (~regular).any():
+        parts.append(f"{int((~regular).sum())} steps not within {FIT_INTERVAL_TOLERANCE:.0%} of the nominal "
+                     f"interval {nominal:g} s left out")
+    if (regular & ~observed).any():
+        parts.append(f"{int((regular & ~observed).sum())} steps with an interpolated end left out")
+    return regular & observed, nominal, "; ".join(parts)
+
+
+def _numeric(frame: pd.DataFrame, name: str, default: float) -> np.ndarray:
+    if name not in frame:
+        return np.full(len(frame), default)
+    return pd.to_numeric(frame[name], errors="coerce").to_numpy(float)
+
+
 def _observations(steps_a: pd.DataFrame, min_step: float):
     """Step and turn values used by the fits, with counts of what was left out."""
-    step = pd.to_numeric(steps_a.get("step_m", pd.Series(dtype=float)), errors="coerce").to_numpy(float)
-    turn = pd.to_numeric(steps_a.get("turn_rad", pd.Series(np.nan, index=steps_a.index)),
-                         errors="coerce").to_numpy(float)
+    step = _numeric(steps_a, "step_m", np.nan)
+    turn = _numeric(steps_a, "turn_rad", np.nan)
+    usable, _, interval_note = on_interval(steps_a)
     missing = ~np.isfinite(step)
     short = np.isfinite(step) & (step <= min_step)
-    n_excl = int(short.sum())
-    parts = []
+    n_excl = int((short & usable).sum())
+    parts = [interval_note]
     if n_excl:
         parts.append(f"{n_excl} steps <= min_step {min_step:g} m left out")
-    if missing.any():
-        parts.append(f"{int(missing.sum())} steps without a length left out")
+    if (missing & usable).any():
+        parts.append(f"{int((missing & usable).sum())} steps without a length left out")
     turn_ok = np.isfinite(turn)
+    segment = steps_a["segment"].to_numpy() if "segment" in steps_a else np.zeros(len(steps_a))
+    # a turn joins a step and the one before it: both must be fitted steps
+    bad = ~usable | (short if min_step > 0 else np.zeros(len(steps_a), dtype=bool))
+    prev_bad = pd.Series(bad).groupby(segment).shift(1).fillna(False).to_numpy(bool)
+    near = turn_ok & (bad | prev_bad)
     turn_note = ""
-    if min_step > 0 and turn_ok.any():
-        segment = steps_a["segment"] if "segment" in steps_a else pd.Series(0, index=steps_a.index)
-        prev_short = pd.Series(short, index=steps_a.index).groupby(segment.to_numpy()).shift(1)
-        near_short = short | prev_short.fillna(False).to_numpy(bool)
-        n_turn_excl = int((turn_ok & near_short).sum())
-        turn_ok &= ~near_short
-        if n_turn_excl:
-            turn_note = f"{n_turn_excl} turns next to a step <= min_step {min_step:g} m left out"
-    return step[~missing & ~short], turn[turn_ok], n_excl, "; ".join(parts), turn_note
+    if near.any():
+        why = "a step off the nominal interval" + (f" or <= min_step {min_step:g} m" if min_step > 0 else "")
+        turn_note = f"{int(near.sum())} turns next to {why} left out"
+    turn_ok &= ~near
+    keep = ~missing & ~short & usable
+    return step[keep], turn[turn_ok], n_excl, "; ".join(p for p in parts if p), turn_note
 
 
 def _too_little(x: np.ndarray, what: str) -> str:
@@ -261,6 +322,8 @@ def _attempt(variable, comparison, name, data, fitter, note, vuong_against=None)
         return _Candidate(variable, comparison, name, data, None, _join(f"fit failed: {exc}", note))
     if model is None:
         return _Candidate(variable, comparison, name, data, None, _join("fit failed", note))
+    if getattr(model, "at_bound", False):
+        note = _join("stopped at its parameter bound (nearly degenerate data)", note)
     vuong = (math.nan, math.nan)
     if vuong_against is not None:
         vuong = vuong_test(model.logpdf(data), vuong_against.logpdf(data))

@@ -8,6 +8,12 @@ mu and rho are found by numerical maximisation (Nelder-Mead on mu and
 logit(rho), the same density written out), started at the trigonometric moments, which for this family are
 E[exp(i theta)] = rho exp(i mu) (Mardia & Jupp 2000, §3.5.7).
 
+The wrapped-Cauchy concentration is bounded, rho <= ``RHO_MAX`` (0.999, a
+circular SD of about 2.6 degrees): when many turns are exactly equal (points
+on a straight line, e.g. interpolated positions) the likelihood grows without
+limit as rho -> 1 and the unbounded fit would describe the walk as perfectly
+straight.  A fit that stops at the bound says so in the ``fits.csv`` note.
+
 Mean cosine and sine (the analytic null needs them; Kareiva & Shigesada 1983):
 von Mises A(kappa) cos mu, A(kappa) sin mu with A = I1/I0; wrapped Cauchy
 rho cos mu, rho sin mu; uniform 0, 0.
@@ -35,6 +41,8 @@ from scipy import optimize, special, stats
 from roamstat.models.base import TurnModel, plain_params, wrap_angle
 
 TWO_PI = 2.0 * math.pi
+#: Upper bound on the wrapped-Cauchy rho (degenerate data otherwise run to rho = 1; a numerical guard, no source).
+RHO_MAX = 0.999
 
 
 class UniformTurns(TurnModel):
@@ -172,7 +180,7 @@ def fit_von_mises(x: np.ndarray) -> VonMisesTurns:
 
 
 def fit_wrapped_cauchy(x: np.ndarray) -> WrappedCauchyTurns:
-    """Wrapped Cauchy MLE (Nelder-Mead on mu and logit rho, scipy density).
+    """Wrapped Cauchy MLE (Nelder-Mead on mu and logit rho, scipy density), rho <= ``RHO_MAX``.
 
     Parameters
     ----------
@@ -185,12 +193,12 @@ def fit_wrapped_cauchy(x: np.ndarray) -> WrappedCauchyTurns:
     """
     x = np.asarray(x, dtype=float)
     moment = np.mean(np.exp(1j * x))
-    rho0 = min(max(abs(moment), 1e-3), 1 - 1e-6)
+    rho0 = min(max(abs(moment), 1e-3), RHO_MAX)
 
     def nll(v):
         # the wrapcauchy density written out (scipy's call overhead dominates at this size)
         rho = special.expit(v[1])
-        if not 0.0 < rho < 1.0:
+        if not 0.0 < rho <= RHO_MAX:
             return math.inf
         return -np.sum(np.log1p(-rho * rho) - np.log1p(rho * rho - 2.0 * rho * np.cos(x - v[0])))
 
@@ -198,8 +206,10 @@ def fit_wrapped_cauchy(x: np.ndarray) -> WrappedCauchyTurns:
         warnings.simplefilter("ignore", RuntimeWarning)
         res = optimize.minimize(nll, [float(np.angle(moment)), float(special.logit(rho0))],
                                 method="Nelder-Mead", options={"xatol": 1e-9, "fatol": 1e-11, "maxiter": 2000})
-    model = WrappedCauchyTurns(res.x[0], float(special.expit(res.x[1])), x.size, 0.0)
+    rho = min(float(special.expit(res.x[1])), RHO_MAX)
+    model = WrappedCauchyTurns(res.x[0], rho, x.size, 0.0)
     model.loglik = float(np.sum(model.logpdf(x)))
+    model.at_bound = rho >= RHO_MAX * (1 - 1e-6)
     return model
 
 

@@ -7,12 +7,16 @@ Each null is built from one animal's fits (the protocol of
 its name in ``Config.nulls``, looked up in the registry
 :data:`roamstat.registry.NULLS`; the correlated random walk also gives the
 Kareiva & Shigesada (1983) expectation (:mod:`roamstat.nulls.analytic`).
+The continuous-time null ``ctcrw`` (:mod:`roamstat.nulls.ctcrw`, marked
+``in_time``) is built from the observed fixes and the config instead and
+simulates at the fixes' own times.
 """
 
 from __future__ import annotations
 
 from roamstat.nulls.analytic import expected_nsd, expected_nsd_symmetric
 from roamstat.nulls.crw import CrwNull
+from roamstat.nulls.ctcrw import CtcrwNull
 from roamstat.nulls.levy import LevyNull
 from roamstat.nulls.observed import NO_SHORT_STEPS, ShortSteps, short_steps
 from roamstat.nulls.shuffle import ShuffleNull
@@ -46,5 +50,5 @@ def build_null(name: str, fits, short: ShortSteps = NO_SHORT_STEPS) -> Walk:
     return NULLS[name].load()(fits, short)
 
 
-__all__ = ["CrwNull", "LevyNull", "NO_SHORT_STEPS", "NullUnavailable", "ShortSteps", "ShuffleNull",
+__all__ = ["CrwNull", "CtcrwNull", "LevyNull", "NO_SHORT_STEPS", "NullUnavailable", "ShortSteps", "ShuffleNull",
            "Walk", "build_null", "expected_nsd", "expected_nsd_symmetric", "short_steps", "simulate_nsd"]

@@ -25,7 +25,7 @@ from pathlib import Path
 import pandas as pd
 
 from roamstat.io.write import atomic_write
-from roamstat.report import curves, figures
+from roamstat.report import curves, figures, motion_figures
 from roamstat.report.html import esc, figure, key_values, page, short_id, table
 from roamstat.report.overview import (animal_ids, animal_rows, comparison_table, null_models,
                                       quality_table)
@@ -97,7 +97,8 @@ def write_report(out_dir: Path, tables: dict[str, pd.DataFrame], animals: list, 
                 written.append((kind, "figures/" + name))
             else:
                 written.append((kind, png))
-        sections.append(_animal_section(animal_id, names[animal_id], result, tables, written))
+        motion = motion_figures.animal_html(out_dir, names[animal_id], animal_id, result, tables, masked)
+        sections.append(_animal_section(animal_id, names[animal_id], result, tables, written, motion))
 
     body = [_header(run_info, masked, len(ids)),
             _overview(tables, ids, nulls, names),
@@ -210,7 +211,7 @@ def _overview(tables: dict, ids: list[str], nulls: list[str], names: dict) -> st
             + '<h2 id="quality">Data quality: rejected rows by reason</h2>' + table(quality))
 
 
-def _animal_section(animal_id: str, name: str, result, tables: dict, written: list) -> str:
+def _animal_section(animal_id: str, name: str, result, tables: dict, written: list, motion: str = "") -> str:
     parts = [f'<section class="animal" id="a-{esc(name)}"><h3>Animal {esc(short_id(animal_id))}</h3>']
     if short_id(animal_id) != animal_id:
         parts.append(f"<details><summary>full id</summary><code>{esc(animal_id)}</code></details>")
@@ -236,6 +237,7 @@ def _animal_section(animal_id: str, name: str, result, tables: dict, written: li
             figs.append(f'<p class="note">{esc(CAPTIONS[kind])} {esc(src)}</p>')
     if figs:
         parts.append('<div class="figures">' + "".join(figs) + "</div>")
+    parts.append(motion)  # motion models, smoothed track, semi-variogram, areas (report/motion_figures.py)
     parts.append("</section>")
     return "".join(parts)
 

@@ -11,7 +11,8 @@ What the report reads
 through the protocol only (``name`` as a legend label, ``logpdf``, and a tail
 model's ``support[0]`` as its lower bound).
 
-``AnimalResult.null_curves[null]``: a dict of equal-length arrays —
+``AnimalResult.null_curves[null]``: a ``compare.NullCurve`` (read through its
+``as_dict()``) or a dict of equal-length arrays —
 the x axis under ``step`` (step index) or ``t_s`` (seconds since the first
 fix), the observed NSD under ``observed_m2``, the pointwise envelope under
 ``lo_m2``/``hi_m2`` and the null mean under ``mean_m2``.  A few obvious
@@ -124,6 +125,7 @@ def null_panels(null_curves: dict) -> tuple[list, str] | None:
     """One panel per null model with an observed curve; and the x-axis label."""
     panels, label = [], "step"
     for name, curve in (null_curves or {}).items():
+        curve = curve.as_dict() if hasattr(curve, "as_dict") else curve  # compare.NullCurve
         observed = _first(curve, _NULL_KEYS["observed"])
         steps, seconds = _first(curve, _NULL_KEYS["step"]), _first(curve, _NULL_KEYS["t_s"])
         if observed is None:
