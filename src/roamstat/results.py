@@ -9,6 +9,7 @@ import pandas as pd
 
 if TYPE_CHECKING:  # the models package is heavy; results only names its type
     from roamstat.models.fit import AnimalFits
+    from roamstat.states import StatesResult
 
 
 @dataclass
@@ -18,7 +19,8 @@ class AnimalResult:
     Tables hold rows for this animal only, with an ``animal_id`` column.
     ``null_curves`` maps a null-model name to the curve dict returned by
     ``compare.test_animal``; ``residency_curve`` and ``range_extras`` come from
-    ``ranges``.  Any part may be empty when a stage had too little data or
+    ``ranges``; ``states`` (rows of states.csv and state_models.csv, the
+    selected model) from ``states.fit_animal_states``.  Any part may be empty when a stage had too little data or
     did not run; ``fitted`` is None when the fit stage did not run.
     """
 
@@ -32,3 +34,4 @@ class AnimalResult:
     null_curves: dict[str, dict] = field(default_factory=dict)
     residency_curve: dict = field(default_factory=dict)
     range_extras: object = None  # ranges.RangeExtras (a plain dict is also read by the report)
+    states: StatesResult | None = None  # None when the states stage did not run
