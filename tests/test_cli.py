@@ -160,10 +160,13 @@ def test_option_of_another_command_says_which_commands_use_it(sample_csv, tmp_pa
     ("clean", ["--max-dop", "--out", "--mask-locations"], ["--replicates", "--null", "--bootstrap", "--workers",
                                                           "--kde-bandwidth", "--no-report"]),
     ("steps", ["--resample"], ["--replicates", "--seed", "--min-step", "--workers"]),
-    ("fit", ["--min-step", "--bootstrap", "--seed", "--workers"], ["--replicates", "--null", "--kde-bandwidth"]),
-    ("nulltest", ["--null", "--replicates", "--alpha"], ["--kde-bandwidth", "--no-report"]),
-    ("ranges", ["--kde-bandwidth", "--workers"], ["--replicates", "--null", "--min-step", "--no-report"]),
-    ("run", ["--replicates", "--kde-bandwidth", "--no-report"], []),
+    ("fit", ["--min-step", "--bootstrap", "--seed", "--workers"], ["--replicates", "--null", "--kde-bandwidth",
+                                                                  "--states", "--state-starts"]),
+    ("states", ["--states", "--state-steps", "--state-turns", "--state-starts", "--seed", "--min-step", "--workers"],
+     ["--bootstrap", "--replicates", "--null", "--kde-bandwidth", "--no-report"]),
+    ("nulltest", ["--null", "--replicates", "--alpha", "--states"], ["--kde-bandwidth", "--no-report"]),
+    ("ranges", ["--kde-bandwidth", "--workers"], ["--replicates", "--null", "--min-step", "--no-report", "--states"]),
+    ("run", ["--replicates", "--kde-bandwidth", "--no-report", "--states", "--state-steps"], []),
 ])
 def test_each_commands_help_shows_only_its_options(command, present, absent, capsys):
     with pytest.raises(SystemExit):

@@ -17,6 +17,7 @@ from roamstat.motion.animal import SMOOTHED_COLUMNS
 from roamstat.ranges.estimate import ROW_COLUMNS as RANGE_COLUMNS
 from roamstat.ranges.residency import MODELS, finalise_residency, residency_animal
 from roamstat.screen import REJECTED_FRONT
+from roamstat.states import decoded_columns, model_columns
 
 DOC = Path(__file__).parents[1] / "docs" / "outputs.md"
 
@@ -81,6 +82,19 @@ def test_motion_tables_match_the_docs():
     assert documented("motion_models.csv") == {"animal_id", *(set(MOTION_COLUMNS) - se), "*_se"}
     # track_smoothed.csv gains `masked` (and loses lat, lon) with --mask-locations
     assert documented("track_smoothed.csv") == {*SMOOTHED_COLUMNS, "masked"}
+
+
+@pytest.mark.parametrize("section,columns,run", [
+    ("states.csv", decoded_columns(4), "p_state"),
+    ("state_models.csv", model_columns(4), "p_to_state"),
+])
+def test_state_table_columns_match_the_docs(section, columns, run):
+    # `<run>_1` … `<run>_K`: one column per state up to the largest K compared (here the most allowed, 4)
+    cell = f"`{run}_1` … `{run}_K`"
+    doc = documented(section)
+    assert cell in doc
+    expanded = (doc - {cell}) | {c for c in columns if c.startswith(run + "_")}
+    assert expanded == set(columns)
 
 
 def test_residency_columns_match_the_docs():

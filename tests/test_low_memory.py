@@ -12,7 +12,7 @@ from roamstat.run import run_command
 
 SAMPLE = Path(__file__).resolve().parents[1] / "sample_tracks" / "collars.csv"
 TABLES = ["fixes.csv", "rejected.csv", "steps.csv", "summary.csv", "fits.csv", "null_tests.csv",
-          "residency.csv", "ranges.csv", "ranges.geojson"]
+          "residency.csv", "ranges.csv", "ranges.geojson", "states.csv", "state_models.csv"]
 
 
 def messy_second_file(tmp_path: Path) -> Path:
@@ -33,8 +33,8 @@ def messy_second_file(tmp_path: Path) -> Path:
 def test_streamed_tables_are_byte_identical(tmp_path, chunk_records, batch_animals):
     inputs = [str(SAMPLE), str(messy_second_file(tmp_path))]
     plain, streamed = tmp_path / "plain", tmp_path / "streamed"
-    assert main(["run", *inputs, "--out", str(plain), "--replicates", "19", "--quiet", "--no-report"]) == 0
-    args = build_parser().parse_args(["run", *inputs, "--out", str(streamed), "--replicates", "19", "--quiet",
+    assert main(["run", *inputs, "--out", str(plain), "--replicates", "19", "--state-starts", "2", "--quiet", "--no-report"]) == 0
+    args = build_parser().parse_args(["run", *inputs, "--out", str(streamed), "--replicates", "19", "--state-starts", "2", "--quiet",
                                       "--no-report", "--low-memory"])
     run_command("run", inputs, streamed, config_from_args(args), [],
                 chunk_records=chunk_records, batch_animals=batch_animals)
@@ -48,5 +48,5 @@ def test_streamed_tables_are_byte_identical(tmp_path, chunk_records, batch_anima
 
 def test_low_memory_run_with_report(tmp_path):
     out = tmp_path / "o"
-    assert main(["run", str(SAMPLE), "--out", str(out), "--replicates", "19", "--quiet", "--low-memory"]) == 0
+    assert main(["run", str(SAMPLE), "--out", str(out), "--replicates", "19", "--state-starts", "2", "--quiet", "--low-memory"]) == 0
     assert (out / "report.html").is_file()

@@ -18,9 +18,9 @@ import pytest
 from roamstat.cli import main
 
 TABLES = ["fixes.csv", "rejected.csv", "steps.csv", "summary.csv", "fits.csv", "null_tests.csv",
-          "residency.csv", "ranges.csv"]
+          "residency.csv", "ranges.csv", "states.csv", "state_models.csv"]
 SAMPLE = Path(__file__).resolve().parents[1] / "sample_tracks" / "collars.csv"
-FAST = ["--replicates", "99", "--quiet"]
+FAST = ["--replicates", "99", "--state-starts", "2", "--quiet"]
 
 
 @pytest.fixture(scope="module")

@@ -29,6 +29,7 @@ COMMANDS = {
     "steps": "clean, then step lengths and turning angles: steps.csv and summary.csv",
     "fit": "steps, then step-length and turning-angle models and continuous-time motion models: fits.csv, "
            "motion_models.csv, track_smoothed.csv",
+    "states": "steps, then hidden Markov models of behavioural states: states.csv, state_models.csv",
     "nulltest": "fit, then random-walk null models and displacement tests: null_tests.csv",
     "ranges": "steps, then motion models, residency classes and home ranges (MCP, KDE, autocorrelation-aware): "
               "motion_models.csv, track_smoothed.csv, residency.csv, ranges.csv, ranges.geojson",
@@ -40,7 +41,8 @@ _WRITING = frozenset(COMMANDS) - {"inspect"}
 _FITTING = frozenset({"fit", "nulltest", "run"})
 _TESTING = frozenset({"nulltest", "run"})
 _RANGING = frozenset({"ranges", "run"})
-_PER_ANIMAL = _FITTING | _RANGING
+_STATING = frozenset({"states", "nulltest", "run"})  # nulltest fits states for --null states
+_PER_ANIMAL = _FITTING | _RANGING | _STATING
 
 
 def _nulls_help() -> str:
@@ -80,11 +82,25 @@ _OPTIONS = (
     ), frozenset(COMMANDS)),
     ("models", (
         ("--min-step", dict(type=float, default=0.0, metavar="M",
-                            help="leave steps of at most this length (m) out of step-length fits")),
+                            help="leave steps of at most this length (m) out of step-length fits "
+                                 "(state models: they form each state's zero mass)")),
         ("--bootstrap", dict(type=int, default=0, metavar="N",
-                             help="parametric-bootstrap replicates for parameter intervals")),
+                             help="parametric-bootstrap replicates for parameter intervals"), _FITTING),
         ("--seed", dict(type=int, default=Config.seed, help=f"run seed (default {Config.seed})")),
-    ), _FITTING),
+    ), _FITTING | _STATING),
+    ("behavioural states", (
+        ("--states", dict(default=",".join(map(str, Config.state_counts)), metavar="K",
+                          help="numbers of states to compare by BIC, e.g. 2 or 1,2,3 "
+                               f"(default {','.join(map(str, Config.state_counts))})")),
+        ("--state-steps", dict(default=Config.state_step_family, metavar="FAMILY",
+                               help=f"step-length family per state: gamma or weibull "
+                                    f"(default {Config.state_step_family})")),
+        ("--state-turns", dict(default=Config.state_turn_family, metavar="FAMILY",
+                               help=f"turning-angle family per state: von_mises or wrapped_cauchy "
+                                    f"(default {Config.state_turn_family})")),
+        ("--state-starts", dict(type=int, default=Config.state_starts, metavar="N",
+                                help=f"random starting points per model (default {Config.state_starts})")),
+    ), _STATING),
     ("null tests", (
         ("--null", dict(default=",".join(DEFAULT_NULLS), help=_nulls_help())),
         ("--replicates", dict(type=int, default=Config.replicates, metavar="M",
@@ -170,8 +186,9 @@ def build_parser() -> argparse.ArgumentParser:
         for title, options, commands in _OPTIONS:
             if name in commands:
                 group = cmd.add_argument_group(title)
-                for flag, kwargs in options:
-                    group.add_argument(flag, **kwargs)
+                for flag, kwargs, *only in options:  # an option may name a narrower set of commands
+                    if not only or name in only[0]:
+                        group.add_argument(flag, **kwargs)
         cmd.add_argument("--debug", action="store_true", default=argparse.SUPPRESS, help=argparse.SUPPRESS)
     return parser
 
@@ -186,7 +203,8 @@ def command_list() -> str:
 
 #: Config field -> argparse destination, where the two differ.
 _DEST = {"disabled_rules": "keep", "nulls": "null", "output_format": "format", "report": "no_report",
-         "uere_m": "uere", "error_class_table": "error_classes"}
+         "uere_m": "uere", "error_class_table": "error_classes",
+         "state_counts": "states", "state_step_family": "state_steps", "state_turn_family": "state_turns"}
 
 
 def config_from_args(args: argparse.Namespace) -> Config:
@@ -199,6 +217,8 @@ def config_from_args(args: argparse.Namespace) -> Config:
         values["disabled_rules"] = tuple(values["disabled_rules"])
     if "nulls" in values:
         values["nulls"] = tuple(n.strip() for n in values["nulls"].split(",") if n.strip())
+    if "state_counts" in values:
+        values["state_counts"] = _state_counts(values["state_counts"])
     if "report" in values:
         values["report"] = not values["report"]
     if "workers" in values:
@@ -206,6 +226,15 @@ def config_from_args(args: argparse.Namespace) -> Config:
     if values.get("mask_grid") is not None:
         values["mask_locations"] = True
     return check_config(Config(**values))
+
+
+def _state_counts(text: str) -> tuple[int, ...]:
+    """``--states 2`` or ``--states 1,2,3`` as a tuple of whole numbers (check_config checks the range)."""
+    try:
+        return tuple(int(k) for k in str(text).split(","))
+    except ValueError:
+        raise RoamstatError(f"--states {text!r}: give whole numbers of states separated by commas, "
+                            "e.g. --states 2 or --states 1,2,3") from None
 
 
 def main(argv: list[str] | None = None) -> int:

@@ -31,7 +31,7 @@ from roamstat.manifest import MANIFEST
 
 #: Everything a roamstat command may leave in its folder.
 OUTPUT_NAMES = {f"{stem}.{ext}" for stem in ("fixes", "rejected", "steps", "summary", "fits", "null_tests",
-                                             "motion_models", "track_smoothed", "residency", "ranges")
+                                             "motion_models", "track_smoothed", "residency", "ranges", "states", "state_models")
                 for ext in ("csv", "parquet")} | \
     {"ranges.geojson", "report.html", "figures", MANIFEST}
 

@@ -134,7 +134,8 @@ def map_points(loaded: Loaded, cfg: Config) -> tuple[pd.DataFrame, pd.DataFrame]
     """Observed and rejected fixes in one planar frame per map (the run's masked frame when masking)."""
     from roamstat.geo import project_lonlat
 
-    fixes = rows.observed(loaded.fixes, ["animal_id", "lat", "lon", "x_m", "y_m"])
+    timed = ["time"] if "time" in loaded.fixes.columns else []  # for the state colours; streamed runs keep none
+    fixes = rows.observed(loaded.fixes, ["animal_id", *timed, "lat", "lon", "x_m", "y_m"])
     rejected = usable_rejected(loaded)
     if cfg.mask_locations:
         from roamstat.ranges import mask_fixes

@@ -34,16 +34,24 @@ COMMAND_STAGES = {
     "clean": (),
     "steps": ("steps",),
     "fit": ("steps", "motion", "fit"),
+    "states": ("steps", "states"),
     "nulltest": ("steps", "motion", "fit", "null"),
     "ranges": ("steps", "motion", "ranges"),
-    "run": ("steps", "motion", "fit", "null", "ranges", "report"),
+    "run": ("steps", "motion", "fit", "states", "null", "ranges", "report"),
 }
-PER_ANIMAL_STAGES = ("motion", "fit", "null", "ranges")
+PER_ANIMAL_STAGES = ("motion", "fit", "states", "null", "ranges")
 
 
 def command_stages(command: str, cfg: Config) -> tuple:
-    """The stages ``command`` runs (the report only when ``cfg.report``)."""
-    return tuple(s for s in COMMAND_STAGES[command] if s != "report" or cfg.report)
+    """The stages ``command`` runs (the report only when ``cfg.report``).
+
+    A null test with ``--null states`` also runs the states stage, which fits
+    the model that null walks (and writes it, so the tested model is on record).
+    """
+    stages = [s for s in COMMAND_STAGES[command] if s != "report" or cfg.report]
+    if "null" in stages and "states" in cfg.nulls and "states" not in stages:
+        stages.insert(stages.index("null"), "states")
+    return tuple(stages)
 
 
 class StageClock:
@@ -149,7 +157,7 @@ class AnimalTask:
 
 
 def analyse_animal(task: AnimalTask) -> AnimalResult:
-    """Fit models, run null tests and estimate ranges for one animal (rows per :mod:`roamstat.rows`)."""
+    """Models, behavioural states, null tests and ranges of one animal (rows per :mod:`roamstat.rows`)."""
     cfg, aid = task.cfg, task.animal_id
     result = AnimalResult(animal_id=aid)
     if "motion" in task.stages:
@@ -157,16 +165,22 @@ def analyse_animal(task: AnimalTask) -> AnimalResult:
     if "fit" in task.stages:
         from roamstat import models
 
-        fitted = models.fit_animal(task.steps, cfg, animal_rng(cfg.seed, aid, "fit"))
-        result.fitted = fitted
-        result.fits = _with_id(fitted.rows, aid)
-        if "null" in task.stages:
-            from roamstat import compare
+        result.fitted = models.fit_animal(task.steps, cfg, animal_rng(cfg.seed, aid, "fit"))
+        result.fits = _with_id(result.fitted.rows, aid)
+    if "states" in task.stages:
+        from roamstat import states
 
-            null_rows, curves = compare.test_animal(task.fixes, task.steps, fitted, task.nominal_dt_s,
-                                                    cfg, animal_rng(cfg.seed, aid, "null"), motion=result.motion)
-            result.null_tests = _with_id(null_rows, aid)
-            result.null_curves = curves
+        result.states = states.fit_animal_states(task.steps, cfg, animal_rng(cfg.seed, aid, "states"))
+        if result.fitted is not None:
+            result.fitted.states = result.states.best  # the model the ``states`` null walks
+    if "null" in task.stages:
+        from roamstat import compare
+
+        # test_animal picks its rows itself: on-grid for the step-based nulls, observed for ctcrw
+        null_rows, curves = compare.test_animal(task.fixes, task.steps, result.fitted, task.nominal_dt_s,
+                                                cfg, animal_rng(cfg.seed, aid, "null"), motion=result.motion)
+        result.null_tests = _with_id(null_rows, aid)
+        result.null_curves = curves
     if "ranges" in task.stages:
         from roamstat import ranges
 
@@ -271,6 +285,12 @@ def deployment_tables(animals: list[AnimalResult], stages: tuple, cfg: Config) -
         tables["track_smoothed"] = concat_tables([a.smoothed for a in animals], SMOOTHED_COLUMNS)
     if "fit" in stages:
         tables["fits"] = concat_tables([a.fits for a in animals])
+    if "states" in stages:
+        from roamstat.states import decoded_columns, model_columns
+
+        max_k = max(cfg.state_counts)
+        tables["states"] = concat_tables([a.states.decoded for a in animals if a.states], decoded_columns(max_k))
+        tables["state_models"] = concat_tables([a.states.rows for a in animals if a.states], model_columns(max_k))
     if "null" in stages:
         from roamstat import compare
 
@@ -288,7 +308,8 @@ def deployment_tables(animals: list[AnimalResult], stages: tuple, cfg: Config) -
 
 def _import_stage_modules(stages) -> None:
     """Import the stage packages before workers start, so forked workers inherit them loaded."""
-    for stage, module in (("motion", "roamstat.motion"), ("fit", "roamstat.models"), ("null", "roamstat.compare"), ("ranges", "roamstat.ranges")):
+    for stage, module in (("motion", "roamstat.motion"), ("fit", "roamstat.models"), ("states", "roamstat.states"),
+                          ("null", "roamstat.compare"), ("ranges", "roamstat.ranges")):
         if stage in stages:
             importlib.import_module(module)
 

@@ -10,6 +10,7 @@ import pandas as pd
 if TYPE_CHECKING:  # the models package is heavy; results only names its type
     from roamstat.models.fit import AnimalFits
     from roamstat.motion.animal import AnimalMotion
+    from roamstat.states import StatesResult
 
 
 @dataclass
@@ -19,7 +20,8 @@ class AnimalResult:
     Tables hold rows for this animal only, with an ``animal_id`` column.
     ``null_curves`` maps a null-model name to the curve dict returned by
     ``compare.test_animal``; ``residency_curve`` and ``range_extras`` come from
-    ``ranges``.  Any part may be empty when a stage had too little data or
+    ``ranges``; ``states`` (rows of states.csv and state_models.csv, the
+    selected model) from ``states.fit_animal_states``.  Any part may be empty when a stage had too little data or
     did not run; ``fitted`` is None when the fit stage did not run.
     """
 
@@ -36,3 +38,4 @@ class AnimalResult:
     motion: AnimalMotion | None = None  # the fitted motion models (None when the motion stage did not run)
     motion_models: pd.DataFrame = field(default_factory=pd.DataFrame)  # motion_models.csv rows
     smoothed: pd.DataFrame = field(default_factory=pd.DataFrame)  # track_smoothed.csv rows (masked when asked)
+    states: StatesResult | None = None  # None when the states stage did not run

@@ -146,6 +146,7 @@ class AnimalFits:
     note: str = ""
     tail_supported: bool = False
     models: dict = field(default_factory=dict)  # (comparison, model name) -> fitted model
+    states: object = None  # states.HmmFit selected for the animal (set by the states stage), for the states null
 
 
 @dataclass

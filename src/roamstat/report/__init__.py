@@ -25,7 +25,7 @@ from pathlib import Path
 import pandas as pd
 
 from roamstat.io.write import atomic_write
-from roamstat.report import curves, figures, motion_figures
+from roamstat.report import curves, figures, motion_figures, states_figures
 from roamstat.report.html import esc, figure, key_values, page, short_id, table
 from roamstat.report.overview import (animal_ids, animal_rows, comparison_table, null_models,
                                       quality_table)
@@ -49,6 +49,7 @@ CAPTIONS = {
     "range": "Home-range outlines (MCP, KDE isopleths) over the fixes.",
     "area": "Area–sample-size curve: range area against the number of fixes used; an estimate that has "
             "not levelled off is an underestimate (Harris et al. 1990).",
+    **states_figures.CAPTIONS,
 }
 
 
@@ -167,6 +168,7 @@ def _draw_animal(result, fixes_a, rejected_a, masked: bool) -> list:
     area = curves.area_series(extras)
     if area:
         jobs.append(("area", lambda: figures.area_curve(area)))
+    jobs += [(kind, draw) for kind, _, draw in states_figures.state_jobs(result.states, fixes_a, masked)]
     drawn = []
     for kind, draw in jobs:
         try:
@@ -201,7 +203,11 @@ def _header(run_info: dict, masked: bool, n_animals: int) -> str:
 
 def _overview(tables: dict, ids: list[str], nulls: list[str], names: dict) -> str:
     links = {i: "a-" + names[i] for i in ids[:MAX_ANIMAL_SECTIONS]}
-    comparison = comparison_table(tables, ids, nulls).rename(columns={"animal_id": "animal"})
+    comparison = comparison_table(tables, ids, nulls)
+    in_state = states_figures.time_in_state(tables.get("state_models"))
+    if in_state:
+        comparison["time in state"] = comparison["animal_id"].map(in_state)
+    comparison = comparison.rename(columns={"animal_id": "animal"})
     quality = quality_table(tables.get("rejected"))
     return ('<h2 id="overview">Deployment overview</h2>'
             '<p class="meta">Verdicts at the run\'s alpha on Benjamini–Hochberg q-values, per null model: '
@@ -224,7 +230,8 @@ def _animal_section(animal_id: str, name: str, result, tables: dict, written: li
     summary = animal_rows(tables.get("summary"), animal_id)
     if len(summary):
         parts.append(key_values(summary.iloc[0].items()))
-    for key, title in (("fits", "Fitted models"), ("null_tests", "Null-model tests"),
+    for key, title in (("fits", "Fitted models"), ("state_models", "Behavioural states (hidden Markov models)"),
+                       ("null_tests", "Null-model tests"),
                        ("residency", "Residency"), ("ranges", "Home ranges")):
         rows = animal_rows(tables.get(key), animal_id)
         if len(rows):

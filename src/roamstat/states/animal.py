@@ -165,7 +165,7 @@ def _decoded_rows(animal: str, steps_a: pd.DataFrame, chain: Chain, obs: Observa
     slot = chain.row_slot
     out = {"animal_id": animal, "time": steps_a["t_start"].reset_index(drop=True), "state": dec.state[slot] + 1}
     for j in range(max_k):
-        out[f"p_state_{j + 1}"] = dec.local[slot, j] if j < fit.n_states else np.nan
+        out[f"p_state_{j + 1}"] = dec.local[slot, j] if j < fit.n_states else np.full(slot.size, np.nan)
     out["step_residual"] = np.where(chain.row_step, dec.step_residual[slot], np.nan)
     out["turn_residual"] = np.where(chain.row_turn, dec.turn_residual[slot], np.nan)
     return pd.DataFrame(out, columns=decoded_columns(max_k))
