@@ -210,7 +210,7 @@ def analyse(loaded: Loaded, stages: tuple, cfg: Config, clock: StageClock | None
         else:
             animals = analyse_animals(loaded, stages, cfg, executor)
     with clock("deployment"):
-        tables = deployment_tables(animals, stages, cfg)
+        tables = deployment_tables(animals, stages, cfg, loaded.summary)
     return tables, animals
 
 
@@ -220,11 +220,17 @@ def analyse_animals(loaded: Loaded, stages: tuple, cfg: Config, executor: Animal
     return executor.map(analyse_animal, animal_tasks(loaded, tuple(stages), cfg))
 
 
-def deployment_tables(animals: list[AnimalResult], stages: tuple, cfg: Config) -> dict:
-    """Tables across animals: fits, null tests with q-values and verdicts, residency, ranges."""
+def deployment_tables(animals: list[AnimalResult], stages: tuple, cfg: Config,
+                      summary: pd.DataFrame | None = None) -> dict:
+    """Tables across animals: fits, null tests with q-values and verdicts, residency, ranges.
+
+    With ``summary``, also ``summary`` with the power-law-tail decision joined (:func:`with_tail`).
+    """
     tables: dict = {}
     if "fit" in stages:
         tables["fits"] = concat_tables([a.fits for a in animals])
+        if summary is not None:
+            tables["summary"] = with_tail(summary, animals)
     if "null" in stages:
         from roamstat import compare
 
@@ -237,6 +243,16 @@ def deployment_tables(animals: list[AnimalResult], stages: tuple, cfg: Config) -
         tables["ranges"] = concat_tables([a.ranges for a in animals])
         tables["ranges_geojson"] = ranges.feature_collection([f for a in animals for f in a.features])
     return tables
+
+
+def with_tail(summary: pd.DataFrame, animals: list[AnimalResult]) -> pd.DataFrame:
+    """``summary`` plus ``tail_supported`` (bool) and ``tail_reason`` (why not; "" when supported)."""
+    fitted = {a.animal_id: a.fitted for a in animals if a.fitted is not None}
+    ids = summary["animal_id"].astype(str)
+    out = summary.copy()
+    out["tail_supported"] = ids.map(lambda i: bool(fitted[i].tail_supported) if i in fitted else False).astype(bool)
+    out["tail_reason"] = ids.map(lambda i: fitted[i].tail_reason if i in fitted else "not fitted")
+    return out
 
 
 def _import_stage_modules(stages) -> None:
