@@ -74,3 +74,96 @@ def animal_rows(table: pd.DataFrame | None, animal_id: str) -> pd.DataFrame:
     table = _rows_for(table)
     rows = table[table["animal_id"].astype(str) == animal_id]
     return rows.drop(columns="animal_id").reset_index(drop=True)
+
+
+# --- the decision-first overview ----------------------------------------------
+
+#: Optional per-animal columns read when a stage wrote their table: (table, column, label).
+OPTIONAL_COLUMNS = [("motion_models", "model", "movement model"), ("state_models", "stationary_probability",
+                                                                     "time in state")]
+
+
+def reference_null(nulls: list[str]) -> str | None:
+    """The null whose displacement the overview scales against: the unbounded walk when it ran."""
+    from roamstat.registry import UNBOUNDED_WALK_NULL
+
+    return UNBOUNDED_WALK_NULL if UNBOUNDED_WALK_NULL in nulls else (nulls[0] if nulls else None)
+
+
+def preferred_areas(ranges: pd.DataFrame | None) -> pd.DataFrame:
+    """Per animal the area to cite: ``kde_autocorr`` 95 % when present, else ``kde`` 95 %."""
+    ranges = _rows_for(ranges)
+    if not {"method", "level", "area_km2"} <= set(ranges.columns):
+        return pd.DataFrame(columns=["animal_id", "method"])
+    level = pd.to_numeric(ranges["level"], errors="coerce")
+    method = ranges["method"].astype(str)
+    rank = method.map({"kde_autocorr": 0, "kde": 1})
+    chosen = ranges[(level == 95) & rank.notna()].assign(_rank=rank).sort_values(["animal_id", "_rank"], kind="stable")
+    return chosen.drop(columns="_rank").drop_duplicates("animal_id")
+
+
+def motion_best(models: pd.DataFrame | None) -> dict:
+    """Best continuous-time movement model per animal (``motion_models`` rows with ``best``)."""
+    models = _rows_for(models)
+    if not {"model", "best"} <= set(models.columns):
+        return {}
+    best = models[models["best"].astype(str).str.lower().isin(["true", "1"])]
+    return dict(zip(best["animal_id"].astype(str), best["model"].astype(str)))
+
+
+def time_in_state(states: pd.DataFrame | None) -> dict:
+    """"state 1 62 %, state 2 38 %" per animal, from the best model's stationary probabilities."""
+    states = _rows_for(states)
+    if not {"state", "stationary_probability"} <= set(states.columns):
+        return {}
+    if "best" in states.columns:
+        states = states[states["best"].astype(str).str.lower().isin(["true", "1"])]
+    out = {}
+    for aid, rows in states.groupby(states["animal_id"].astype(str)):
+        out[aid] = ", ".join(f"state {s} {100 * float(p):.0f} %" for s, p in zip(rows["state"], rows["stationary_probability"]))
+    return out
+
+
+def ratio_text(observed_m, median_m) -> str:
+    """How many times the null's median end distance the animal went ("3.1×")."""
+    try:
+        ratio = float(observed_m) / float(median_m)
+    except (TypeError, ValueError, ZeroDivisionError):
+        return ""
+    if ratio != ratio or ratio in (float("inf"), float("-inf")):
+        return ""
+    return f"{ratio:.2g}×" if ratio < 10 else f"{ratio:.0f}×"
+
+
+def sentence(animal: dict) -> str:
+    """A plain-language sentence about one animal from its overview facts."""
+    verdict, null, ratio = animal.get("verdict"), animal.get("null"), animal.get("ratio")
+    if verdict == "farther":
+        head = f"Ended {ratio} as far from its start as the median {null} random walk: farther than chance"
+    elif verdict == "closer":
+        head = f"Ended only {ratio} as far from its start as the median {null} random walk: closer than chance"
+    elif verdict == "consistent":
+        head = f"Ended about as far from its start as a {null} random walk ({ratio} its median)"
+    elif verdict:
+        head = f"Too little data to test against the {null} random walk"
+    else:
+        head = "No null test ran"
+    pattern = animal.get("pattern")
+    tail = f"; a {pattern} pattern" if pattern and not str(pattern).startswith(("insufficient", "undetermined", "–")) else ""
+    candidate = "; a candidate for a home-range study" if animal.get("candidate") else ""
+    return head + tail + candidate + "."
+
+
+def disagreement(verdicts: dict, medians: dict) -> str:
+    """One line on why the nulls disagree ("" when the decisive verdicts agree)."""
+    decisive = {n: v for n, v in verdicts.items() if v in ("farther", "closer", "consistent")}
+    if len(set(decisive.values())) < 2:
+        return ""
+    spread = {n: m for n, m in medians.items() if n in decisive and m == m and m is not None}
+    said = ", ".join(f"{v} under {n}" for n, v in decisive.items())
+    if len(spread) >= 2:
+        far, near = max(spread, key=spread.get), min(spread, key=spread.get)
+        return (f"Nulls disagree ({said}): the {far} null's walks end a median {spread[far] / 1000:.3g} km from the "
+                f"start, the {near} null's {spread[near] / 1000:.3g} km; a null built from heavier-tailed or "
+                "straighter steps travels farther, so 'farther' is harder to reach under it.")
+    return f"Nulls disagree ({said}): the nulls differ in how far their walks travel."
