@@ -51,12 +51,12 @@ def run_command(command: str, paths, out_dir, cfg: Config, argv: list[str] | Non
                 result = in_memory(paths, stages, out_dir, cfg, clock, executor, origin)
         except NothingKept as exc:
             all_rejected(exc, out_dir, cfg)
-    if "report" in stages:
-        from roamstat.report import write_report
+        if "report" in stages:  # in the executor's block: figures are drawn by the same workers
+            from roamstat.report import write_report
 
-        with clock("report"):
-            write_report(out_dir, report_tables(result.loaded, result.tables, cfg), result.animals,
-                         run_info(result.loaded, cfg, argv), cfg)
+            with clock("report"):
+                write_report(out_dir, report_tables(result.loaded, result.tables, cfg), result.animals,
+                             run_info(result.loaded, cfg, argv), cfg, executor)
     write_json(build_manifest(command, result.loaded, cfg, argv, clock.stages, time.perf_counter() - started),
                out_dir / MANIFEST)
     result.out_dir, result.stages = out_dir, clock.stages

@@ -212,7 +212,8 @@ def _overview(rows: dict, nulls: list[str], links: dict, tables: dict) -> str:
         area = "–"
         if f["area"] is not None:
             area = f"{esc(area_text(f['area']))}<br><span class=\"meta\">{esc(f['area']['method'])} 95 %</span>"
-        cells = [f'<a href="{esc(links[aid])}">{esc(short_id(aid))}</a>{species}', tracked, scale, verdicts,
+        wrap = ' class="nowrap"' if len(aid) <= 16 else ""
+        cells = [f'<a{wrap} href="{esc(links[aid])}">{esc(short_id(aid))}</a>{species}', tracked, scale, verdicts,
                  esc(f["pattern"] or "–"), esc(f["candidate_text"]), area]
         if "movement model" in optional:
             cells.append(esc(f["motion"] or "–"))

@@ -17,21 +17,29 @@ from matplotlib.figure import Figure
 from matplotlib.patches import PathPatch
 from matplotlib.path import Path as MplPath
 
-DPI = 90
+DPI = 80  # figures are shown about 440 px wide: 80 dpi x 5 in is enough (display choice, no source)
 NORMAL = (5.0, 3.6)
 SQUARE = (4.2, 4.2)
+#: Fixed margins in inches instead of a layout engine: the constrained layout measured every tick
+#: label of every figure, about half the drawing time (profiled on the sample deployment).
+MARGINS_IN = {"left": 0.62, "right": 0.12, "bottom": 0.5, "top": 0.3}
+PNG_OPTIONS = {"compress_level": 1}  # zlib level 1: ~3x faster than the default 6, files ~30 % larger
 START_COLOUR, END_COLOUR, TRACK_COLOUR, GREY = "#1a7f37", "#c62828", "#1f5fa8", "#9e9e9e"
 
 
-def _new(size, **kwargs):
-    fig = Figure(figsize=size, dpi=DPI, layout="constrained")
+def _new(size, margins=None, **kwargs):
+    fig = Figure(figsize=size, dpi=DPI)
     FigureCanvasAgg(fig)
+    m = {**MARGINS_IN, **(margins or {})}
+    width, height = size
+    fig.subplots_adjust(left=m["left"] / width, right=1 - m["right"] / width, bottom=m["bottom"] / height,
+                        top=1 - m["top"] / height, hspace=0.45)
     return fig, fig.subplots(**kwargs)
 
 
 def _png(fig) -> bytes:
     buffer = io.BytesIO()
-    fig.savefig(buffer, format="png", dpi=DPI, metadata={"Software": None})
+    fig.savefig(buffer, format="png", dpi=DPI, metadata={"Software": None}, pil_kwargs=PNG_OPTIONS)
     fig.clear()
     return buffer.getvalue()
 
@@ -149,7 +157,7 @@ def turn_rose(turn_rad, curves) -> bytes:
     """
     turns = np.asarray(turn_rad, float)
     turns = turns[np.isfinite(turns)]
-    fig, ax = _new(SQUARE, subplot_kw={"projection": "polar"})
+    fig, ax = _new(SQUARE, {"left": 0.45, "right": 0.45, "bottom": 0.9, "top": 0.35}, subplot_kw={"projection": "polar"})
     ax.set_theta_zero_location("N")
     ax.set_theta_direction(-1)
     edges = np.linspace(-np.pi, np.pi, 25)
@@ -162,7 +170,7 @@ def turn_rose(turn_rad, curves) -> bytes:
         ax.plot(np.asarray(theta, float), np.asarray(density, float), linewidth=1.6, label=str(label))
     ax.tick_params(labelsize=7)
     ax.set_xticks(np.deg2rad([0, 90, 180, 270]), ["ahead", "right", "back", "left"])
-    fig.legend(fontsize=7, loc="outside lower center", ncols=2)
+    fig.legend(fontsize=7, loc="lower center", ncols=2, frameon=False)
     return _png(fig)
 
 

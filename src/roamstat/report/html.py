@@ -43,12 +43,12 @@ p,li{max-width:75ch}
 .scroll{overflow-x:auto;-webkit-overflow-scrolling:touch;margin:.4rem 0 1rem;max-width:100%}
 table{border-collapse:collapse;font-size:.85rem}
 th,td{border:1px solid #d0d7de;padding:.25rem .5rem;text-align:left;vertical-align:top;overflow-wrap:anywhere}
-td.num{white-space:nowrap}
+td.num{white-space:nowrap}th{overflow-wrap:normal}.nowrap{white-space:nowrap}
 table.overview{width:100%}table.overview td{font-size:.84rem}
 table.overview tbody{border-top:2px solid #aab4bf}
 tr.says td{border-top:none;color:#2d333a;background:#fafbfc;font-size:.84rem}
 .why{color:#6b4e00}.ratio{font-weight:600;margin-right:.3rem}
-svg.interval{vertical-align:middle}
+svg.interval{display:block;margin-top:.15rem}
 .v{display:inline-block;border-radius:3px;padding:0 .3rem;margin:.05rem 0;white-space:nowrap}
 dl.legend{display:grid;grid-template-columns:max-content 1fr;gap:.15rem 1rem;font-size:.85rem;max-width:110ch}
 dl.legend dt{font-weight:600}dl.legend dd{margin:0}

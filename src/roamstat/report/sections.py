@@ -79,6 +79,10 @@ def _full(animal: AnimalView, stem: str, what: str) -> str:
     return f'<p class="meta">{esc(what)}: <a href="{esc(animal.root + name)}">{esc(name)}</a> (full precision).</p>'
 
 
+def _note(text: str) -> str:
+    return f'<p class="note">{esc(text)}</p>'
+
+
 def _heading(title: str) -> str:
     return f"<h4>{esc(title)}</h4>"
 
@@ -164,6 +168,8 @@ def fitted_models(tables: dict, animal: AnimalView) -> Fragment:
         fragment.html = (_heading("Fitted step and turn models") + table(shown, numeric=["ΔAIC", "weight"])
                          + _full(animal, "fits", "Log-likelihoods, AIC, KS and Vuong statistics"))
     fitted = getattr(animal.result, "fitted", None)
+    if fitted is not None and fitted.note:
+        fragment.html = (fragment.html or _heading("Fitted step and turn models")) + _note(fitted.note)
     steps, turns = curves.step_data(fitted), curves.turn_data(fitted)
     if steps:
         fragment.figures.append(("steps", CAPTIONS["steps"],
@@ -212,6 +218,8 @@ def home_ranges(tables: dict, animal: AnimalView) -> Fragment:
                                                                         "effective n"])
                          + _full(animal, "ranges", "Bandwidths, Schoener's ratio, area gain"))
     extras = getattr(animal.result, "range_extras", None) or {}
+    if isinstance(extras.get("note"), str) and extras["note"].strip():
+        fragment.html = (fragment.html or _heading("Home ranges")) + _note(extras["note"])
     contours = curves.contour_data(extras)
     if contours:
         points = curves.xy_table(extras.get("track_xy"))
