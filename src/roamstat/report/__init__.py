@@ -177,10 +177,10 @@ def _overview_rows(tables: dict, ids: list[str], nulls: list[str]) -> dict:
                  "ratio": ratio_text(test.get("observed_net_m"), test.get("null_median_m")) if test is not None else "",
                  "pattern": residency_text(r) if r is not None else None,
                  "candidate_text": candidate_text(r, tests) if r is not None else "–",
-                 "candidate": bool(r.get("range_study_candidate")) if r is not None and r.get("range_study_candidate") is True else False,
                  "area": areas.get(aid), "motion": motion.get(aid), "states": states.get(aid)}
         facts["days"] = human.days(s.get("first_time"), s.get("last_time")) if s is not None else math.nan
         facts["fixes"] = s.get("n_fixes") if s is not None else None
+        facts["candidate"] = facts["candidate_text"].startswith("yes")
         facts["sentence"] = sentence(facts)
         facts["why"] = disagreement(verdicts, medians)
         out[aid] = facts

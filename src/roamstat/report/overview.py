@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import pandas as pd
 
+from roamstat.report.human import significant
+
 
 def _rows_for(table: pd.DataFrame | None, column: str = "animal_id") -> pd.DataFrame:
     if table is None or table.empty or column not in table.columns:
@@ -132,7 +134,7 @@ def ratio_text(observed_m, median_m) -> str:
         return ""
     if ratio != ratio or ratio in (float("inf"), float("-inf")):
         return ""
-    return f"{ratio:.2g}×" if ratio < 10 else f"{ratio:.0f}×"
+    return f"{significant(ratio, 2)}×"
 
 
 def sentence(animal: dict) -> str:

@@ -281,6 +281,8 @@ def candidate_text(row, tests: pd.DataFrame) -> str:
         if isinstance(row.get(column), str) and row[column]:
             return ("yes: " if bool(value) else "no: ") + row[column]
     pattern = residency_text(row)
+    if pattern.startswith("insufficient"):
+        return f"no: {pattern}"  # too few fixes for a residency class: no range-study claim either
     if bool(value):
         return f"yes: {pattern} pattern, not farther than the {UNBOUNDED_WALK_NULL} null"
     if pattern not in ("resident", "sedentary"):
