@@ -28,7 +28,7 @@ if TYPE_CHECKING:
 #: Everything a run may leave in its folder; a run interrupted before its manifest leaves only these.
 OUTPUT_NAMES = {f"{stem}.{ext}" for stem in ("fixes", "rejected", "steps", "summary", "fits", "null_tests",
                                              "residency", "ranges") for ext in ("csv", "parquet")} | \
-    {"ranges.geojson", "report.html", "figures", MANIFEST}
+    {"ranges.geojson", "report.html", "figures", "animals", MANIFEST}
 
 
 def _earlier_output(out_dir: Path) -> bool:

@@ -257,7 +257,8 @@ def with_tail(summary: pd.DataFrame, animals: list[AnimalResult]) -> pd.DataFram
 
 def _import_stage_modules(stages) -> None:
     """Import the stage packages before workers start, so forked workers inherit them loaded."""
-    for stage, module in (("fit", "roamstat.models"), ("null", "roamstat.compare"), ("ranges", "roamstat.ranges")):
+    for stage, module in (("fit", "roamstat.models"), ("null", "roamstat.compare"), ("ranges", "roamstat.ranges"),
+                          ("report", "roamstat.report")):
         if stage in stages:
             importlib.import_module(module)
 

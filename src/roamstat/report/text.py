@@ -32,7 +32,8 @@ Hochberg 1995).</p>
 <p>Residency patterns were classified by fitting the NSD-through-time models of Bunnefeld et al.
 (2011) and ranking them by AIC. First home-range estimates are
 {_and([m.prose for m in RANGE_METHODS.values()])}, with the area–sample-size curve (Harris et al. 1990)
-and Schoener's ratio as an autocorrelation diagnostic (Swihart &amp; Slade 1985). Fix-rate and
+and Schoener's ratio as an autocorrelation diagnostic (Swihart &amp; Slade 1985); areas from fewer than 30 fixes
+are reported as insufficient (Seaman et al. 1999). Fix-rate and
 positional-error considerations follow Bjørneraas et al. (2010); path tortuosity measures follow
 Benhamou (2004).</p>
 """
@@ -65,6 +66,8 @@ REFERENCES = [
     "American Midland Naturalist 37: 223–249.",
     "Myllymäki, M., Mrkvička, T., Grabarnik, P., Seijo, H. &amp; Hahn, U. (2017). Global envelope tests for "
     "spatial processes. Journal of the Royal Statistical Society B 79: 381–404.",
+    "Seaman, D. E., Millspaugh, J. J., Kernohan, B. J., Brundige, G. C., Raedeke, K. J. &amp; Gitzen, R. A. "
+    "(1999). Effects of sample size on kernel home range estimates. Journal of Wildlife Management 63: 739–747.",
     "Swihart, R. K. &amp; Slade, N. A. (1985). Testing for independence of observations in animal movements. "
     "Ecology 66: 1176–1184.",
     "Turchin, P. (1998). Quantitative Analysis of Movement: Measuring and Modeling Population Redistribution "
