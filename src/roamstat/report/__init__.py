@@ -204,8 +204,9 @@ def _overview(rows: dict, nulls: list[str], links: dict, tables: dict) -> str:
     blocks = []
     for aid, f in rows.items():
         species = f'<br><span class="meta"><em>{esc(f["species"])}</em></span>' if isinstance(f["species"], str) else ""
-        tracked = (f"{human.significant(f['days'])} d<br>{human.number(f['fixes'], 0)} fixes"
-                   if f["fixes"] is not None and not human._missing(f["fixes"]) else "–")
+        tracked = (f'<span class="nowrap">{human.significant(f["days"])} d</span><br>'
+                   f'<span class="nowrap">{human.number(f["fixes"], 0)} fixes</span>'
+                   if f["fixes"] is not None and not human.missing(f["fixes"]) else "–")
         test = f["test"]
         scale = (f'<span class="ratio">{esc(f["ratio"])}</span>' + interval_svg(test) if test is not None else "–")
         verdicts = " ".join(f'<span class="v v-{esc(v)}">{esc(n)}: {esc(v)}</span>' for n, v in f["verdicts"].items()) or "–"

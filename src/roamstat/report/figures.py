@@ -248,7 +248,7 @@ def nsd_envelopes(panels, x_label: str) -> bytes:
                     label="null mean")
         ax.plot(x, np.asarray(panel["observed"], float) / scale, color="black", linewidth=1.3, label="observed")
         # A text in the axes, not a title: placing titles measured every tick label again.
-        ax.text(0.99, 0.96, f"null model: {panel['name']}", transform=ax.transAxes, ha="right", va="top", fontsize=9)
+        ax.text(0.0, 1.02, f"null model: {panel['name']}", transform=ax.transAxes, ha="left", va="bottom", fontsize=9)
         ax.set_ylabel(f"NSD ({unit})", fontsize=8)
         ax.tick_params(labelsize=7)
     axes[-1, 0].set_xlabel(x_label, fontsize=8)

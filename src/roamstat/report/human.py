@@ -21,7 +21,7 @@ ANGLE_PARAMETERS = ("mu",)
 DASH = "–"
 
 
-def _missing(value) -> bool:
+def missing(value) -> bool:
     try:
         return value is None or value is pd.NA or bool(pd.isna(value))
     except (TypeError, ValueError):
@@ -39,7 +39,7 @@ def decimals_for(values, significant: int = SIGNIFICANT) -> int:
 
 def number(value, decimals: int) -> str:
     """``value`` with ``decimals`` decimals and thousands separators; "–" when missing."""
-    if _missing(value):
+    if missing(value):
         return DASH
     value = float(value)
     if not math.isfinite(value):
@@ -56,7 +56,7 @@ def column(values, scale: float = 1.0, significant: int = SIGNIFICANT) -> list[s
 
 def probability(value) -> str:
     """p-, q-values and weights: 3 decimals, "< 0.001" below."""
-    if _missing(value):
+    if missing(value):
         return DASH
     value = float(value)
     return "< 0.001" if value < SMALLEST_SHOWN else f"{value:.3f}"
@@ -64,7 +64,7 @@ def probability(value) -> str:
 
 def significant(value, digits: int = SIGNIFICANT) -> str:
     """One value to ``digits`` significant figures, in plain notation."""
-    if _missing(value):
+    if missing(value):
         return DASH
     value = float(value)
     if value == 0 or not math.isfinite(value):
@@ -73,11 +73,19 @@ def significant(value, digits: int = SIGNIFICANT) -> str:
 
 
 def hours(seconds) -> str:
-    return DASH if _missing(seconds) else f"{significant(float(seconds) / 3600.0)} h"
+    return DASH if missing(seconds) else f"{significant(float(seconds) / 3600.0)} h"
 
 
 def km(metres) -> str:
-    return DASH if _missing(metres) else f"{significant(float(metres) / 1000.0)} km"
+    return DASH if missing(metres) else f"{significant(float(metres) / 1000.0)} km"
+
+
+def date(value) -> str:
+    """The calendar date (UTC) of a timestamp or ISO text; "–" when missing or unreadable."""
+    try:
+        return DASH if missing(value) else pd.Timestamp(value).strftime("%Y-%m-%d")
+    except (TypeError, ValueError):
+        return DASH
 
 
 def days(start, end) -> float:
@@ -120,7 +128,7 @@ def degenerate(params, variable: str = "step") -> str:
 def _params(params) -> dict:
     if isinstance(params, dict):
         return params
-    if _missing(params) or not str(params).strip():
+    if missing(params) or not str(params).strip():
         return {}
     try:
         value = json.loads(str(params))

@@ -95,20 +95,20 @@ def facts(tables: dict, animal: AnimalView) -> Fragment:
     s = summary.iloc[0]
     pairs = [("species", s.get("species")),
              ("tracked", f"{human.significant(human.days(s.get('first_time'), s.get('last_time')))} days, "
-                         f"{s.get('first_time', '–')} to {s.get('last_time', '–')}"),
+                         f"{human.date(s.get('first_time'))} to {human.date(s.get('last_time'))} (UTC)"),
              ("fixes kept / rows rejected", f"{s.get('n_fixes', '–')} / {s.get('n_rejected', '–')}"),
              ("median fix interval", human.hours(s.get("median_dt_s"))),
              ("segments, steps", f"{s.get('n_segments', '–')}, {s.get('n_steps', '–')}"),
              ("path length", human.km(s.get("path_m"))), ("start-to-end distance", human.km(s.get("net_m"))),
              ("straightness (0–1)", human.significant(s.get("straightness"))),
              ("power-law tail", tail_text(s))]
-    pairs = [(k, v) for k, v in pairs if not human._missing(v) and "nan" not in str(v)]
+    pairs = [(k, v) for k, v in pairs if not human.missing(v) and "nan" not in str(v)]
     return Fragment(key_values(pairs))
 
 
 def tail_text(row) -> str:
     """"supported", or "not supported: why" (from summary's ``tail_supported`` and ``tail_reason``)."""
-    if "tail_supported" not in row or human._missing(row.get("tail_supported")):
+    if "tail_supported" not in row or human.missing(row.get("tail_supported")):
         return "–"
     if bool(row["tail_supported"]):
         return "supported"
@@ -187,7 +187,7 @@ def residency(tables: dict, animal: AnimalView) -> Fragment:
         r = rows.iloc[0]
         pairs = [("residency class", residency_text(r)),
                  ("range-study candidate", candidate_text(r, _rows(tables, "null_tests")))]
-        if "delta_aic" in r and not human._missing(r["delta_aic"]):
+        if "delta_aic" in r and not human.missing(r["delta_aic"]):
             pairs.append(("ΔAIC to the next pattern", human.significant(r["delta_aic"])))
         if isinstance(r.get("note"), str) and r["note"]:
             pairs.append(("note", r["note"]))
@@ -206,7 +206,7 @@ def home_ranges(tables: dict, animal: AnimalView) -> Fragment:
     fragment = Fragment()
     if len(rows) and {"method", "level", "area_km2"} <= set(rows.columns):
         shown = pd.DataFrame({"method": rows["method"].astype(str).to_numpy(),
-                              "level (%)": [human.significant(v) for v in rows["level"]],
+                              "level (%)": [human.number(v, 0) for v in rows["level"]],
                               "area (km²)": [area_text(r) for _, r in rows.iterrows()]})
         if "n_fixes" in rows:
             shown["fixes used"] = [human.number(v, 0) for v in rows["n_fixes"]]
@@ -247,14 +247,14 @@ def track_map(tables: dict, animal: AnimalView) -> Fragment:
 def area_text(row) -> str:
     """An area in km² (with its interval when given), or "insufficient" under the fix threshold."""
     n = pd.to_numeric(pd.Series([row.get("n_fixes")]), errors="coerce").iloc[0]
-    if not human._missing(n) and n < RANGE_MIN_FIXES:
+    if not human.missing(n) and n < RANGE_MIN_FIXES:
         return f"insufficient ({int(n)} fixes; needs ≥ {RANGE_MIN_FIXES})"
     area = row.get("area_km2")
-    if human._missing(area):
+    if human.missing(area):
         return "–"
     text = human.significant(area)
     low, high = row.get("area_low_km2"), row.get("area_high_km2")
-    if not human._missing(low) and not human._missing(high):
+    if not human.missing(low) and not human.missing(high):
         text += f" ({human.significant(low)}–{human.significant(high)})"
     return text
 
@@ -264,10 +264,10 @@ def residency_text(row) -> str:
     from roamstat.ranges.residency import MIN_FIXES
 
     n = pd.to_numeric(pd.Series([row.get("n_fixes")]), errors="coerce").iloc[0]
-    if not human._missing(n) and n < MIN_FIXES:
+    if not human.missing(n) and n < MIN_FIXES:
         return f"insufficient ({int(n)} fixes; needs ≥ {MIN_FIXES})"
     pattern = row.get("pattern")
-    return "–" if human._missing(pattern) else str(pattern)
+    return "–" if human.missing(pattern) else str(pattern)
 
 
 def candidate_text(row, tests: pd.DataFrame) -> str:
@@ -275,7 +275,7 @@ def candidate_text(row, tests: pd.DataFrame) -> str:
     from roamstat.registry import UNBOUNDED_WALK_NULL
 
     value = row.get("range_study_candidate")
-    if human._missing(value):
+    if human.missing(value):
         return "–"
     for column in ("range_study_reason", "candidate_reason"):
         if isinstance(row.get(column), str) and row[column]:
