@@ -9,10 +9,11 @@ id into a figure: headings live in the HTML, where they are escaped.
 from __future__ import annotations
 
 import io
+import threading
 
 import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
-from matplotlib.dates import AutoDateLocator, ConciseDateFormatter
+from matplotlib.dates import AutoDateLocator, ConciseDateFormatter, date2num
 from matplotlib.figure import Figure
 from matplotlib.ticker import MaxNLocator
 from matplotlib.patches import PathPatch
@@ -44,12 +45,13 @@ def _new(size, margins=None, **kwargs):
 
 #: Per process, the figure of each kind and shape, redrawn for the next animal instead of rebuilt:
 #: its axes, tick objects and the renderer's text-size cache survive (about 40 % less drawing time,
-#: measured on the track map). Module state is safe: each worker process draws one figure at a time.
+#: measured on the track map). Keyed by thread too, so threads never share a figure.
 _REUSED: dict = {}
 
 
 def _take(key, size, margins=None, **kwargs):
     """A cleared figure for ``key`` (kind and shape): the process's earlier one, or a new one."""
+    key = (threading.get_ident(), key)  # a threaded worker (Dask) draws on one figure per thread
     held = _REUSED.get(key)
     if held is None:
         held = _REUSED[key] = _new(size, margins, **kwargs)
@@ -68,6 +70,7 @@ def _take(key, size, margins=None, **kwargs):
             ax.locator_params(nbins=5)
         ax.set_xlabel("")
         ax.set_ylabel("")
+        ax.set_prop_cycle(None)  # the same colours in the same order for every animal
         ax.relim()
         ax.set_autoscale_on(True)
     return held
@@ -268,15 +271,18 @@ def residency_fit(t, observed, fitted, y_label: str, t_label: str) -> bytes:
     fitted : list of (label, t, values, chosen)
         Fitted curves; the chosen model is drawn bold.
     """
-    fig, ax = _new(NORMAL)
-    ax.scatter(t, np.asarray(observed, float), s=5, color=GREY, label="observed")
+    fig, ax = _take("residency", NORMAL)
+    dates = np.issubdtype(np.asarray(t).dtype, np.datetime64)
+    # Dates as plain day numbers with a date locator: no unit converter stays on the reused axis.
+    as_x = (lambda v: date2num(np.asarray(v, "datetime64[ns]"))) if dates else (lambda v: np.asarray(v, float))
+    ax.scatter(as_x(t), np.asarray(observed, float), s=5, color=GREY, label="observed")
     for label, tt, values, chosen in fitted:
-        ax.plot(tt, np.asarray(values, float), linewidth=2.2 if chosen else 1.0,
+        ax.plot(as_x(tt), np.asarray(values, float), linewidth=2.2 if chosen else 1.0,
                 alpha=1.0 if chosen else 0.7, label=f"{label} (chosen)" if chosen else str(label))
     ax.set_xlabel(t_label, fontsize=8)
     ax.set_ylabel(y_label, fontsize=8)
     ax.tick_params(labelsize=7)
-    if np.issubdtype(np.asarray(t).dtype, np.datetime64):
+    if dates:
         locator = AutoDateLocator(maxticks=6)
         ax.xaxis.set_major_locator(locator)
         ax.xaxis.set_major_formatter(ConciseDateFormatter(locator))
