@@ -14,7 +14,6 @@ from html.parser import HTMLParser
 
 import numpy as np
 import pandas as pd
-import pytest
 
 from report_inputs import make_inputs
 from roamstat.config import Config

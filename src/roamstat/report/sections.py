@@ -96,13 +96,13 @@ def facts(tables: dict, animal: AnimalView) -> Fragment:
     pairs = [("species", s.get("species")),
              ("tracked", f"{human.significant(human.days(s.get('first_time'), s.get('last_time')))} days, "
                          f"{human.date(s.get('first_time'))} to {human.date(s.get('last_time'))} (UTC)"),
-             ("fixes kept / rows rejected", f"{s.get('n_fixes', '–')} / {s.get('n_rejected', '–')}"),
+             ("fixes kept / rows rejected", f"{human.number(s.get('n_fixes'), 0)} / {human.number(s.get('n_rejected'), 0)}"),
              ("median fix interval", human.hours(s.get("median_dt_s"))),
-             ("segments, steps", f"{s.get('n_segments', '–')}, {s.get('n_steps', '–')}"),
+             ("segments, steps", f"{human.number(s.get('n_segments'), 0)}, {human.number(s.get('n_steps'), 0)}"),
              ("path length", human.km(s.get("path_m"))), ("start-to-end distance", human.km(s.get("net_m"))),
              ("straightness (0–1)", human.significant(s.get("straightness"))),
              ("power-law tail", tail_text(s))]
-    pairs = [(k, v) for k, v in pairs if not human.missing(v) and "nan" not in str(v)]
+    pairs = [(k, v) for k, v in pairs if not human.missing(v) and not str(v).startswith(human.DASH)]
     return Fragment(key_values(pairs))
 
 
