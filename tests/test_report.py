@@ -9,6 +9,8 @@ device names are from Microsoft's "Naming Files, Paths, and Namespaces"
 
 from __future__ import annotations
 
+import base64
+import hashlib
 import re
 from html.parser import HTMLParser
 from pathlib import Path
@@ -21,6 +23,7 @@ from report_inputs import make_inputs
 from roamstat.config import Config
 from roamstat.report import safe_name, safe_names, write_report
 from roamstat.report import curves
+from roamstat.report.html import SEARCH_JS
 
 HOSTILE = ["<script>alert(1)</script>", '" onerror="x', "<img src=x onerror=alert(2)>", "ELK-01",
            "ünïcode-Ω", "CON"]
@@ -32,7 +35,7 @@ class Collector(HTMLParser):
 
     def __init__(self):
         super().__init__(convert_charrefs=True)
-        self.tags, self.attrs, self.text, self.img_src = [], [], [], []
+        self.tags, self.attrs, self.text, self.img_src, self.scripts = [], [], [], [], []
 
     def handle_starttag(self, tag, attrs):
         self.tags.append(tag)
@@ -41,7 +44,10 @@ class Collector(HTMLParser):
             self.img_src.append(dict(attrs)["src"])
 
     def handle_data(self, data):
-        self.text.append(data)
+        if self.tags and self.tags[-1] == "script" and data.strip():
+            self.scripts.append(data)
+        else:
+            self.text.append(data)
 
 
 @pytest.fixture(scope="module")
@@ -73,8 +79,8 @@ def test_every_image_exists_and_is_a_png(report):
 def test_hostile_ids_appear_only_escaped(report):
     _, path, parsed = report
     raw = path.read_text(encoding="utf-8")
-    # A parser sees no script element and no event-handler attribute: the ids stayed text.
-    assert "script" not in parsed.tags
+    # A parser sees one script element, the fixed search script, and no event-handler attribute: the ids stayed text.
+    assert parsed.tags.count("script") == 1 and parsed.scripts == [SEARCH_JS]
     assert not [a for a in parsed.attrs if a.startswith("on")]
     assert "<script>alert(1)</script>" not in raw
     assert "&lt;script&gt;alert(1)&lt;/script&gt;" in raw
@@ -89,7 +95,10 @@ def test_no_external_resources(report):
     _, path, _ = report
     raw = path.read_text(encoding="utf-8")
     assert not re.search(r'(src|href)="(https?:)?//', raw)
-    assert "Content-Security-Policy" in raw and "script-src" not in raw  # default-src 'none' covers scripts
+    # Scripts: only the fixed search script, allowed by its SHA-256 hash (CSP Level 2, "hash-source").
+    digest = base64.b64encode(hashlib.sha256(SEARCH_JS.encode()).digest()).decode()
+    assert "Content-Security-Policy" in raw and f"script-src 'sha256-{digest}'" in raw
+    assert "unsafe-inline'" not in raw.split("script-src")[1].split('"')[0]
     assert "@media print" in raw and 'name="viewport"' in raw
 
 

@@ -1,4 +1,6 @@
-"""report.html opened in a real browser (headless chromium): not blank, images load, fits a phone.
+"""report.html opened in a real browser (headless chromium): not blank, images load, fits a phone,
+no table overflows at 1280 px, every image has alt text, the legend is there, and a paged
+deployment's overview links every animal page and its search box filters.
 
 The browser is the reference here: Chromium's own image decoder says whether
 each <img> loaded (``naturalWidth > 0``) and its layout engine says whether the
@@ -14,6 +16,7 @@ import shutil
 import subprocess
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from report_inputs import make_inputs
@@ -34,8 +37,24 @@ document.getElementById("report").addEventListener("load", function () {{
   try {{
     var images = Array.prototype.slice.call(doc.images);
     var loaded = images.filter(function (i) {{ return i.complete && i.naturalWidth > 0; }}).length;
-    out.textContent = "images=" + images.length + " loaded=" + loaded +
-      " scroll_width=" + doc.documentElement.scrollWidth + " view_width=" + doc.documentElement.clientWidth;
+    var noalt = images.filter(function (i) {{ return !(i.getAttribute("alt") || "").trim(); }}).length;
+    var view = doc.documentElement.clientWidth;
+    // A table overflows when it reaches past the window or past the box that holds it.
+    var overflow = Array.prototype.slice.call(doc.querySelectorAll("table")).filter(function (t) {{
+      return t.getBoundingClientRect().right > view + 0.5 || t.scrollWidth > t.parentElement.clientWidth + 1;
+    }}).length;
+    var shown = -1, box = doc.getElementById("animal-search");
+    if (box && "{query}") {{
+      box.value = "{query}";
+      box.dispatchEvent(new Event("input"));
+      shown = Array.prototype.slice.call(doc.querySelectorAll("#overview-table tbody")).filter(function (b) {{
+        return !b.hidden && b.getBoundingClientRect().height > 0; }}).length;
+    }}
+    out.textContent = "images=" + images.length + " loaded=" + loaded + " noalt=" + noalt +
+      " scroll_width=" + doc.documentElement.scrollWidth + " view_width=" + view + " overflow=" + overflow +
+      " legend=" + (doc.getElementById("legend") ? 1 : 0) +
+      " animal_links=" + doc.querySelectorAll('a[href^="animals/"]').length +
+      " back_links=" + doc.querySelectorAll('a[href^="../report.html"]').length + " shown=" + (shown + 1);
   }} catch (e) {{ out.textContent = "error=" + e; }}
 }});
 </script></body></html>
@@ -58,9 +77,10 @@ def report_path(tmp_path_factory):
     return write_report(out, tables, animals, run_info, Config())
 
 
-def page_numbers(tmp_path: Path, report: Path, width: int) -> dict:
-    wrapper = tmp_path / f"wrapper-{width}.html"
-    wrapper.write_text(WRAPPER.format(src=report.resolve().as_uri(), width=width), encoding="utf-8")
+def page_numbers(tmp_path: Path, report: Path, width: int, query: str = "") -> dict:
+    """Numbers the browser measured; ``shown`` is 1 + the animal blocks left visible by ``query``."""
+    wrapper = tmp_path / f"wrapper-{width}-{len(list(tmp_path.glob('wrapper-*')))}.html"
+    wrapper.write_text(WRAPPER.format(src=report.resolve().as_uri(), width=width, query=query), encoding="utf-8")
     done = run_browser(tmp_path, "--allow-file-access-from-files", "--virtual-time-budget=15000", "--dump-dom",
                        wrapper.resolve().as_uri())
     found = re.search(r'<pre id="result">([^<]*)</pre>', done.stdout)
@@ -106,3 +126,75 @@ def test_missing_image_is_detected(report_path, tmp_path):
     victim.unlink()
     numbers = page_numbers(tmp_path, copy / "report.html", 1200)
     assert numbers["loaded"] == numbers["images"] - 1
+
+
+def test_no_table_overflows_at_1280_and_every_image_has_alt_text(report_path, tmp_path):
+    numbers = page_numbers(tmp_path, report_path, 1280)
+    assert numbers["overflow"] == 0, numbers
+    assert numbers["scroll_width"] <= numbers["view_width"], numbers
+    assert numbers["images"] >= 7 and numbers["noalt"] == 0, numbers
+    assert numbers["legend"] == 1
+
+
+def test_overflow_check_can_fail(report_path, tmp_path):
+    # The same report with a table forced wider than the window: the check counts it.
+    copy = tmp_path / "wide"
+    shutil.copytree(report_path.parent, copy)
+    html = (copy / "report.html").read_text(encoding="utf-8")
+    (copy / "report.html").write_text(html.replace("<table", '<table style="min-width:3000px"', 1), encoding="utf-8")
+    assert page_numbers(tmp_path, copy / "report.html", 1280)["overflow"] >= 1
+
+
+def tiny_deployment(path: Path, n_animals: int, n_fixes: int, seed: int = 3) -> Path:
+    """Many short simulated tracks (correlated random walks, hourly fixes), for layout checks only."""
+    rng = np.random.default_rng(seed)
+    lines = ["animal_id,timestamp,latitude,longitude"]
+    start = np.datetime64("2025-05-01T00:00:00")
+    for a in range(n_animals):
+        heading = np.cumsum(rng.vonmises(0.0, 2.0, n_fixes))
+        step = rng.gamma(2.0, 60.0, n_fixes)
+        north, east = np.cumsum(step * np.cos(heading)), np.cumsum(step * np.sin(heading))
+        for i in range(n_fixes):
+            lat = 60.0 + north[i] / 111_320.0
+            lon = 10.0 + east[i] / (111_320.0 * np.cos(np.radians(60.0)))
+            lines.append(f"T{a:04d},{start + np.timedelta64(i, 'h')}Z,{lat:.6f},{lon:.6f}")
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    return path
+
+
+@pytest.fixture(scope="module")
+def paged_report(tmp_path_factory):
+    """A deployment over the (lowered) page threshold: overview page plus one page per animal."""
+    if BROWSER is None:
+        pytest.skip("no chromium or chromium-browser on PATH (Debian: apt-get install -y chromium)")
+    from roamstat.manifest import run_info
+    from roamstat.outputs import report_tables
+    from roamstat.run import run_command
+
+    base = tmp_path_factory.mktemp("paged")
+    cfg = Config(replicates=19, report=False, quiet=True, nulls=("crw",))
+    result = run_command("run", [tiny_deployment(base / "tiny.csv", 30, 48)], base / "out", cfg)
+    path = write_report(result.out_dir, report_tables(result.loaded, result.tables, cfg), result.animals,
+                        run_info(result.loaded, cfg, None), cfg, pages_from=10)
+    return path, [a.animal_id for a in result.animals]
+
+
+def test_paged_report_links_every_animal_page(paged_report, tmp_path):
+    path, ids = paged_report
+    numbers = page_numbers(tmp_path, path, 1280)
+    assert numbers["animal_links"] == len(ids) == 30
+    assert numbers["overflow"] == 0 and numbers["legend"] == 1, numbers
+    html = path.read_text(encoding="utf-8")
+    targets = re.findall(r'href="(animals/[^"]+\.html)"', html)
+    assert len(set(targets)) == len(ids) and all((path.parent / t).is_file() for t in targets)
+    # One animal page in the browser: its figures load, its tables fit, it links back to the overview.
+    animal = page_numbers(tmp_path, path.parent / targets[0], 1280)
+    assert animal["images"] >= 3 and animal["loaded"] == animal["images"] and animal["noalt"] == 0, animal
+    assert animal["overflow"] == 0 and animal["back_links"] >= 1, animal
+
+
+def test_search_box_filters_the_overview(paged_report, tmp_path):
+    path, ids = paged_report
+    assert page_numbers(tmp_path, path, 1280, query="t0007")["shown"] - 1 == 1  # one id matches
+    assert page_numbers(tmp_path, path, 1280, query="t00")["shown"] - 1 == len(ids)
+    assert page_numbers(tmp_path, path, 1280, query="no-such-animal")["shown"] - 1 == 0

@@ -33,7 +33,7 @@ from roamstat.manifest import MANIFEST
 OUTPUT_NAMES = {f"{stem}.{ext}" for stem in ("fixes", "rejected", "steps", "summary", "fits", "null_tests",
                                              "motion_models", "track_smoothed", "residency", "ranges", "states", "state_models")
                 for ext in ("csv", "parquet")} | \
-    {"ranges.geojson", "report.html", "figures", MANIFEST}
+    {"ranges.geojson", "report.html", "figures", "animals", MANIFEST}
 
 _LOCK, _NEW, _OLD = ".roamstat-lock", ".roamstat-new-", ".roamstat-old-"
 _STALE_EMPTY_LOCK_S = 10.0  # a lock file still empty after this long lost its writer

@@ -264,7 +264,7 @@ def analyse(loaded: Loaded, stages: tuple, cfg: Config, clock: StageClock | None
         else:
             animals = analyse_animals(loaded, stages, cfg, executor)
     with clock("deployment"):
-        tables = deployment_tables(animals, stages, cfg)
+        tables = deployment_tables(animals, stages, cfg, loaded.summary)
     return tables, animals
 
 
@@ -274,8 +274,12 @@ def analyse_animals(loaded: Loaded, stages: tuple, cfg: Config, executor: Animal
     return executor.map(analyse_animal, animal_tasks(loaded, tuple(stages), cfg))
 
 
-def deployment_tables(animals: list[AnimalResult], stages: tuple, cfg: Config) -> dict:
-    """Tables across animals: fits, null tests with q-values and verdicts, residency, ranges."""
+def deployment_tables(animals: list[AnimalResult], stages: tuple, cfg: Config,
+                      summary: pd.DataFrame | None = None) -> dict:
+    """Tables across animals: fits, null tests with q-values and verdicts, residency, ranges.
+
+    With ``summary``, also ``summary`` with the power-law-tail decision joined (:func:`with_tail`).
+    """
     tables: dict = {}
     if "motion" in stages:
         from roamstat.motion import TABLE_COLUMNS
@@ -285,6 +289,8 @@ def deployment_tables(animals: list[AnimalResult], stages: tuple, cfg: Config) -
         tables["track_smoothed"] = concat_tables([a.smoothed for a in animals], SMOOTHED_COLUMNS)
     if "fit" in stages:
         tables["fits"] = concat_tables([a.fits for a in animals])
+        if summary is not None:
+            tables["summary"] = with_tail(summary, animals)
     if "states" in stages:
         from roamstat.states import decoded_columns, model_columns
 
@@ -306,10 +312,24 @@ def deployment_tables(animals: list[AnimalResult], stages: tuple, cfg: Config) -
     return tables
 
 
+#: Columns the fit stage adds to summary.csv.
+TAIL_COLUMNS = ("tail_supported", "tail_reason")
+
+
+def with_tail(summary: pd.DataFrame, animals: list[AnimalResult]) -> pd.DataFrame:
+    """``summary`` plus ``tail_supported`` (bool) and ``tail_reason`` (why not; "" when supported)."""
+    fitted = {a.animal_id: a.fitted for a in animals if a.fitted is not None}
+    ids = summary["animal_id"].astype(str)
+    out = summary.copy()
+    out["tail_supported"] = ids.map(lambda i: bool(fitted[i].tail_supported) if i in fitted else False).astype(bool)
+    out["tail_reason"] = ids.map(lambda i: fitted[i].tail_reason if i in fitted else "not fitted")
+    return out
+
+
 def _import_stage_modules(stages) -> None:
     """Import the stage packages before workers start, so forked workers inherit them loaded."""
     for stage, module in (("motion", "roamstat.motion"), ("fit", "roamstat.models"), ("states", "roamstat.states"),
-                          ("null", "roamstat.compare"), ("ranges", "roamstat.ranges")):
+                          ("null", "roamstat.compare"), ("ranges", "roamstat.ranges"), ("report", "roamstat.report")):
         if stage in stages:
             importlib.import_module(module)
 

@@ -66,12 +66,12 @@ def _compute(command: str, paths, stages: tuple, folder: OutputFolder, cfg: Conf
             _write_manifest(outcome_manifest(command, cfg, argv, str(exc)), folder)
             folder.commit()
             raise error from None
-    if "report" in stages:
-        from roamstat.report import write_report
+        if "report" in stages:  # in the executor's block: figures are drawn by the same workers
+            from roamstat.report import write_report
 
-        with clock("report"):
-            write_report(staging, report_tables(result.loaded, result.tables, cfg), result.animals,
-                         run_info(result.loaded, cfg, argv), cfg)
+            with clock("report"):
+                write_report(staging, report_tables(result.loaded, result.tables, cfg), result.animals,
+                             run_info(result.loaded, cfg, argv), cfg, executor)
     _write_manifest(build_manifest(command, result.loaded, cfg, argv, clock.stages, time.perf_counter() - started),
                     folder)
     result.stages = clock.stages

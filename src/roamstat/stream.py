@@ -170,7 +170,7 @@ def _process(spill: _Spill, stages, out_dir: Path, cfg: Config, clock: StageCloc
                     projections=dict(sorted(projections.items())), kept=kept, origin=origin,
                     summary=concat_tables(summaries) if summaries else None)
     with clock("deployment"):
-        tables = deployment_tables(animals, stages, cfg) if animals else {}
+        tables = deployment_tables(animals, stages, cfg, loaded.summary) if animals else {}
     with clock("write"):
         write_named(out_dir, {"rejected": rejected_for_output(rejected, cfg)}, loaded.summary, tables, cfg)
     return RunResult(loaded=loaded, tables=tables, animals=animals)

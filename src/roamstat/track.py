@@ -67,6 +67,8 @@ MAX_GRID_ROWS = 20_000_000
 
 STEP_COLUMNS = ["animal_id", "segment", "t_start", "t_end", "dt_s", "step_m", "heading_rad", "turn_rad", "speed_m_s",
                 "interp_s"]
+#: Input columns read as the species (Darwin Core ``scientificName`` first), compared lower-cased.
+SPECIES_COLUMNS = ("orig_scientificname", "orig_species", "orig_taxon")
 SUMMARY_COLUMNS = [
     "animal_id", "n_fixes", "n_rejected", "first_time", "last_time", "median_dt_s", "nominal_dt_s",
     "regularity", "n_segments", "n_steps", "n_zero_steps", "path_m", "net_m", "straightness", "sinuosity",
@@ -491,6 +493,8 @@ def summarise(fixes: pd.DataFrame, steps: pd.DataFrame, rejected: pd.DataFrame) 
     * ``tag``: only when the input had a deployment column (re-collared
       animals): the device of this deployment, so the table says which
       ``animal/tag`` rows are one animal's separate deployments.
+    * ``species``: only when the input had a species column (Darwin Core
+      ``scientificName``, or ``species``), its first non-empty value per animal.
     * ``n_fixes``: observed fixes kept (interpolated rows not counted);
       ``n_rejected``: rows of this animal in ``rejected``.
     * ``first_time, last_time, median_dt_s, nominal_dt_s, regularity``: from
@@ -527,6 +531,11 @@ def summarise(fixes: pd.DataFrame, steps: pd.DataFrame, rejected: pd.DataFrame) 
     out = pd.DataFrame({"animal_id": ids})
     if "tag" in fixes.columns:
         out["tag"] = out["animal_id"].map(fixes.groupby(fixes["animal_id"].astype(str))["tag"].first())
+    lowered = {str(c).lower(): c for c in fixes.columns}
+    species = next((lowered[n] for n in SPECIES_COLUMNS if n in lowered), None)
+    if species is not None:
+        named = fixes[species].astype("string").str.strip().replace("", pd.NA)
+        out["species"] = out["animal_id"].map(named.groupby(fixes["animal_id"].astype(str)).first())
     out["n_fixes"] = np.bincount(obs_codes, minlength=ids.size)
     out["n_rejected"] = _count_by(rejected["animal_id"], ids) if "animal_id" in rejected else 0
     out["first_time"] = _from_ns(obs_ns[obs_starts])
@@ -558,7 +567,8 @@ def summarise(fixes: pd.DataFrame, steps: pd.DataFrame, rejected: pd.DataFrame) 
     with np.errstate(divide="ignore", invalid="ignore"):
         out["straightness"] = np.where(denominator > 0, net / denominator, np.nan)
     out["sinuosity"] = _sinuosity(mean, mean_sq, mean_cos)
-    return out[SUMMARY_COLUMNS[:1] + (["tag"] if "tag" in out else []) + SUMMARY_COLUMNS[1:]]
+    optional = [c for c in ("tag", "species") if c in out]
+    return out[SUMMARY_COLUMNS[:1] + optional + SUMMARY_COLUMNS[1:]]
 
 
 def _codes_in(animal_id: pd.Series, ids: np.ndarray) -> np.ndarray:

@@ -134,6 +134,8 @@ class AnimalFits:
         Why something is missing ("" when nothing is).
     tail_supported : bool
         The power-law-tail rule of this module's docstring.
+    tail_reason : str
+        Why the tail is not supported ("" when it is), for summary.csv.
     """
 
     rows: pd.DataFrame
@@ -145,6 +147,7 @@ class AnimalFits:
     n_excluded_steps: int
     note: str = ""
     tail_supported: bool = False
+    tail_reason: str = ""
     models: dict = field(default_factory=dict)  # (comparison, model name) -> fitted model
     states: object = None  # states.HmmFit selected for the animal (set by the states stage), for the states null
 
@@ -211,9 +214,10 @@ def fit_animal(steps_a: pd.DataFrame, cfg, rng: np.random.Generator) -> AnimalFi
     best = {comparison: models[(comparison, model)]  # plain zip: itertuples builds a class per call
             for comparison, model, is_best in zip(rows["comparison"], rows["model"], rows["best"]) if is_best}
     tail = _better(models.get(("tail", "power_law")), models.get(("tail", "truncated_power_law")))
+    reason = _tail_unsupported_reason(rows, tail, next((n[6:] for n in notes if n.startswith(("step: ", "tail: "))), ""))
     return AnimalFits(rows=rows, best_step=best.get("full"), best_turn=best.get("turn"), tail=tail,
                       step_values=steps, turn_values=turns, n_excluded_steps=n_excl,
-                      note="; ".join(notes), tail_supported=_tail_supported(rows, tail), models=models)
+                      note="; ".join(notes), tail_supported=not reason, tail_reason=reason, models=models)
 
 
 def fits_table(fits_by_animal: Mapping[str, AnimalFits]) -> pd.DataFrame:
@@ -394,21 +398,23 @@ def _better(a: StepModel | None, b: StepModel | None) -> StepModel | None:
     return b if b.aic < a.aic else a
 
 
-def _tail_supported(rows: pd.DataFrame, tail: StepModel | None) -> bool:
+def _tail_unsupported_reason(rows: pd.DataFrame, tail: StepModel | None, problem: str) -> str:
+    """"" when the tail rule of the module docstring holds, else why not (``problem``: why no tail was fitted)."""
     if tail is None:
-        return False
+        return f"insufficient: {problem}" if problem else "no tail model could be fitted"
     t = rows[rows["comparison"] == "tail"].set_index("model")
     if tail.name not in t.index or not bool(t.at[tail.name, "best"]):
-        return False
+        return "a light-tailed family has a lower AIC above xmin"
     if not t.at["power_law", "gof_p"] > GOF_P:
-        return False
+        return (f"the power law fails its goodness-of-fit test (p {t.at['power_law', 'gof_p']:.2g}, "
+                f"needs > {GOF_P:g})")
     for alternative in TAIL_REFIT:
         if alternative not in t.index:
-            return False
+            return f"{alternative} could not be fitted above xmin for comparison"
         stat, p = t.at[alternative, "vuong_stat"], t.at[alternative, "vuong_p"]
         if not (stat < 0 and p < VUONG_P):
-            return False
-    return True
+            return f"not distinguishable from {alternative} (Vuong p {p:.2g}, needs < {VUONG_P:g})"
+    return ""
 
 
 def _join(*parts: str) -> str:

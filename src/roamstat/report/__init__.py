@@ -20,41 +20,35 @@ Inputs beyond the data contract that the report reads when present
 
 from __future__ import annotations
 
+import math
 from pathlib import Path
 
 import pandas as pd
 
 from roamstat.io.write import atomic_write
-from roamstat.report import curves, figures, motion_figures, states_figures
-from roamstat.report.html import esc, figure, key_values, page, short_id, table
-from roamstat.report.overview import (animal_ids, animal_rows, comparison_table, null_models,
-                                      quality_table)
+from roamstat.report import human
+from roamstat.report.html import esc, key_values, page, search_script, short_id, table
+from roamstat.report.overview import (OPTIONAL_COLUMNS, animal_ids, disagreement, motion_best, null_models,
+                                      preferred_areas, quality_table, ratio_text, reference_null, sentence,
+                                      time_in_state)
+from roamstat.report.sections import (SECTIONS, AnimalJob, AnimalView, area_text, candidate_text,
+                                      render_animal, residency_text)
 from roamstat.report.slug import safe_name, safe_names
-from roamstat.report.text import CAUTIONS, MASKED_NOTE, REFERENCES, UNMASKED_NOTE, methods_html
+from roamstat.report.text import CAUTIONS, MASKED_NOTE, REFERENCES, UNMASKED_NOTE, legend_html, methods_html
 
-__all__ = ["write_report", "safe_name", "safe_names"]
+__all__ = ["write_report", "safe_name", "safe_names", "SECTIONS", "PAGES_FROM"]
 
-#: Animals beyond this many get table rows but no section or figures, so a
-#: deployment of thousands of tiny animals still reports in seconds.
-MAX_ANIMAL_SECTIONS = 60
-
-CAPTIONS = {
-    "track": "Track in planar coordinates: start ▲, end ■, rejected fixes × (faint).",
-    "steps": "Step lengths (histogram, as a density) with the fitted densities; a tail law is scaled "
-             "by the share of steps it describes.",
-    "turns": "Turning angles (rose; ahead at the top, right turns to the right) with the fitted turn model.",
-    "nsd": "Observed net squared displacement (NSD) against each null model: pointwise envelope of the "
-           "null walks (grey) and their mean (dashed).",
-    "residency": "Residency: observed net squared displacement through time and the fitted NSD models.",
-    "range": "Home-range outlines (MCP, KDE isopleths) over the fixes.",
-    "area": "Area–sample-size curve: range area against the number of fixes used; an estimate that has "
-            "not levelled off is an underestimate (Harris et al. 1990).",
-    **states_figures.CAPTIONS,
-}
+#: From this many animals on, each animal gets its own page (animals/<name>.html), linked from the
+#: overview; below it every section is in report.html (display choice, no source).
+PAGES_FROM = 25
+#: Tables handed to each animal's section builders (its rows only); later stages add theirs by name.
+PER_ANIMAL_TABLES = ("summary", "fits", "null_tests", "residency", "ranges", "motion_models", "state_models",
+                     "states_summary")
 
 
-def write_report(out_dir: Path, tables: dict[str, pd.DataFrame], animals: list, run_info: dict, cfg) -> Path:
-    """Write ``out_dir/report.html`` and its figures.
+def write_report(out_dir: Path, tables: dict[str, pd.DataFrame], animals: list, run_info: dict, cfg,
+                 executor=None, pages_from: int = PAGES_FROM) -> Path:
+    """Write ``out_dir/report.html``, its figures and, for large deployments, one page per animal.
 
     Parameters
     ----------
@@ -62,63 +56,89 @@ def write_report(out_dir: Path, tables: dict[str, pd.DataFrame], animals: list, 
         Output folder (created if needed); figures go to ``out_dir/figures``.
     tables : dict of DataFrame
         ``summary``, ``rejected``, ``fits``, ``null_tests``, ``residency``,
-        ``ranges`` (any may be missing or empty), and optionally ``fixes``
-        and ``rejected_xy`` (see the module docstring).
+        ``ranges`` (any may be missing or empty), optionally ``fixes`` and
+        ``rejected_xy`` (see the module docstring) and the tables of later
+        stages (``motion_models``, ``state_models``), read when present.
     animals : list of AnimalResult
         Per-animal results in id order.
     run_info : dict
         ``version, command_line, seed, n_read, n_kept, n_rejected,
         projections, masked, inputs``.
     cfg : Config
-        Uses ``mask_locations`` and ``nulls``.
+        Uses ``mask_locations``, ``nulls``, ``quiet`` and ``output_format``.
+    executor : AnimalExecutor, optional
+        The run's worker pool: each animal's figures are drawn there.  None
+        draws in this process (with a progress bar unless ``cfg.quiet``).
+    pages_from : int
+        Deployments of at least this many animals get one page per animal.
 
     Returns
     -------
     Path
         The path of report.html.
     """
+    from roamstat.parallel import AnimalExecutor
+
     out_dir = Path(out_dir)
     masked = bool(getattr(cfg, "mask_locations", False) or run_info.get("masked"))
     ids = animal_ids(tables, animals)
     names = safe_names(ids)
-    by_id = {str(a.animal_id): a for a in animals}
+    paged = len(ids) >= pages_from
     nulls = null_models(tables.get("null_tests"), tuple(getattr(cfg, "nulls", ())))
-    fixes = _grouped(tables.get("fixes"))
-    rejected_xy = _grouped(_rejected_coordinates(tables))
+    overview = _overview_rows(tables, ids, nulls)
+    jobs = _jobs(out_dir, tables, animals, ids, names, masked, paged, overview,
+                 "parquet" if getattr(cfg, "output_format", "csv") == "parquet" else "csv")
+    if executor is None:
+        with AnimalExecutor(1, None, bool(getattr(cfg, "quiet", False))) as own:
+            sections = own.map(render_animal, jobs, desc="report")
+    else:
+        sections = executor.map(render_animal, jobs, desc="report")
 
-    sections = []
-    for animal_id in ids[:MAX_ANIMAL_SECTIONS]:
-        result = by_id.get(animal_id)
-        drawn = _draw_animal(result, fixes.get(animal_id), rejected_xy.get(animal_id), masked) if result else []
-        written = []
-        for kind, png in drawn:
-            if isinstance(png, bytes):
-                name = f"{names[animal_id]}-{kind}.png"
-                atomic_write(out_dir / "figures" / name, png)
-                written.append((kind, "figures/" + name))
-            else:
-                written.append((kind, png))
-        motion = motion_figures.animal_html(out_dir, names[animal_id], animal_id, result, tables, masked)
-        sections.append(_animal_section(animal_id, names[animal_id], result, tables, written, motion))
-
-    body = [_header(run_info, masked, len(ids)),
-            _overview(tables, ids, nulls, names),
-            "<h2 id=\"animals\">Animals</h2>"]
-    if len(ids) > MAX_ANIMAL_SECTIONS:
-        body.append(f'<p class="note">{esc(len(ids))} animals: sections and figures are shown for the first '
-                    f"{MAX_ANIMAL_SECTIONS} in id order; every animal is in the tables above and in the CSV "
-                    "outputs.</p>")
-    body.extend(sections)
+    links = {i: (f"animals/{names[i]}.html" if paged else f"#a-{names[i]}") for i in ids}
+    body = [_header(run_info, masked, len(ids), paged),
+            _overview(overview, nulls, links, tables),
+            '<h2 id="quality">Data quality: rejected rows by reason</h2>' + table(quality_table(tables.get("rejected")))]
+    if paged:
+        body.append(f'<h2 id="animals">Animals</h2><p class="meta">{len(ids)} animals: each has its own page, '
+                    "linked from the overview above (search by id or species).</p>")
+        for animal_id, section in zip(ids, sections):
+            atomic_write(out_dir / "animals" / f"{names[animal_id]}.html",
+                         page(f"roamstat: animal {short_id(animal_id)}", _animal_page(section, masked)))
+    else:
+        body.append('<h2 id="animals">Animals</h2>')
+        body.extend(sections)
     body.append(_methods(nulls or tuple(getattr(cfg, "nulls", ()))))
     body.append('<h2 id="cautions">Cautions</h2>' + CAUTIONS)
     body.append(f'<p class="note">{esc(MASKED_NOTE if masked else UNMASKED_NOTE)}</p>')
     path = out_dir / "report.html"
-    atomic_write(path, page("roamstat report", "".join(body)))
+    atomic_write(path, page("roamstat report", "".join(body), script=search_script()))
     return path
 
 
-def _grouped(frame: pd.DataFrame | None) -> dict:
-    if frame is None or frame.empty or not {"animal_id", "x_m", "y_m"} <= set(frame.columns):
+def _animal_page(section: str, masked: bool) -> str:
+    return ('<nav><a href="../report.html#overview">← Deployment overview</a> · '
+            '<a href="../report.html#cautions">Cautions</a></nav>'
+            '<p class="caution">Statistical verdicts support, not replace, expert judgement. Exact locations of '
+            'sensitive species can enable poaching or disturbance: read the cautions before sharing.</p>'
+            + section + f'<p class="note">{esc(MASKED_NOTE if masked else UNMASKED_NOTE)}</p>')
+
+
+def _jobs(out_dir, tables, animals, ids, names, masked, paged, overview, table_format) -> list[AnimalJob]:
+    by_id = {str(a.animal_id): a for a in animals}
+    fixes, rejected = _grouped(tables.get("fixes")), _grouped(_rejected_coordinates(tables))
+    per_table = {key: _grouped(tables.get(key), need=("animal_id",)) for key in PER_ANIMAL_TABLES}
+    root = "../" if paged else ""
+    jobs = []
+    for animal_id in ids:
+        view = AnimalView(animal_id, by_id.get(animal_id), fixes.get(animal_id), rejected.get(animal_id), masked,
+                          root, table_format)
+        own = {key: rows[animal_id].reset_index(drop=True) for key, rows in per_table.items() if animal_id in rows}
+        jobs.append(AnimalJob(view, own, names[animal_id], out_dir / "figures", overview[animal_id]["sentence"]))
+    return jobs
+
+
+def _grouped(frame: pd.DataFrame | None, need=("animal_id", "x_m", "y_m")) -> dict:
+    if frame is None or frame.empty or not set(need) <= set(frame.columns):
         return {}
     return {str(k): v for k, v in frame.groupby(frame["animal_id"].astype(str), sort=False)}
 
@@ -130,56 +150,91 @@ def _rejected_coordinates(tables: dict) -> pd.DataFrame | None:
     return None
 
 
-def _range_extras(result) -> dict:
-    """The ranges stage's hand-off (``ranges.RangeExtras``, or a plain dict) as a dict."""
-    extras = result.range_extras or {}
-    return extras if isinstance(extras, dict) else vars(extras)
+def _first_rows(frame) -> dict:
+    if not isinstance(frame, pd.DataFrame) or frame.empty or "animal_id" not in frame.columns:
+        return {}
+    frame = frame.set_index(frame["animal_id"].astype(str))
+    return {k: r for k, r in frame[~frame.index.duplicated()].iterrows()}
 
 
-def _draw_animal(result, fixes_a, rejected_a, masked: bool) -> list:
-    """[(kind, png bytes or a note why the figure is missing)] for one animal."""
-    extras = _range_extras(result)
-    track = curves.xy_table(fixes_a) if fixes_a is not None else curves.xy_table(extras.get("track_xy"))
-    rejected = curves.xy_table(rejected_a) if rejected_a is not None else curves.xy_table(extras.get("rejected_xy"))
-    jobs = []
-    if track is not None and len(track):
-        rx, ry = (rejected["x_m"], rejected["y_m"]) if rejected is not None else (None, None)
-        jobs.append(("track", lambda: figures.track_map(track["x_m"], track["y_m"], rx, ry, masked)))
-    steps = curves.step_data(result.fitted)
-    if steps:
-        jobs.append(("steps", lambda: figures.step_histogram(steps["steps"], steps["curves"], steps["log_axes"])))
-    turns = curves.turn_data(result.fitted)
-    if turns:
-        jobs.append(("turns", lambda: figures.turn_rose(turns["turns"], turns["curves"])))
-    nsd = curves.null_panels(result.null_curves)
-    if nsd:
-        jobs.append(("nsd", lambda: figures.nsd_envelopes(*nsd)))
-    residency = curves.residency_data(result.residency_curve, result.residency)
-    if residency:
-        jobs.append(("residency", lambda: figures.residency_fit(residency["t"], residency["observed"],
-                                                                residency["fitted"], residency["y_label"],
-                                                                residency["t_label"])))
-    contours = curves.contour_data(extras)
-    if contours:
-        # Outlines come in the ranges stage's own (equal-area, possibly masked) frame: draw its fixes with them.
-        points = curves.xy_table(extras.get("track_xy"))
-        points = points if points is not None else pd.DataFrame({"x_m": [], "y_m": []})
-        jobs.append(("range", lambda: figures.range_contours(points["x_m"], points["y_m"], contours, masked)))
-    area = curves.area_series(extras)
-    if area:
-        jobs.append(("area", lambda: figures.area_curve(area)))
-    jobs += [(kind, draw) for kind, _, draw in states_figures.state_jobs(result.states, fixes_a, masked)]
-    drawn = []
-    for kind, draw in jobs:
-        try:
-            drawn.append((kind, draw()))
-        except (ValueError, TypeError, IndexError, KeyError, OverflowError) as error:
-            # Odd data must cost one figure, not the report; the reason is shown in its place.
-            drawn.append((kind, f"figure not drawn ({type(error).__name__}: {error})"))
-    return drawn
+def _overview_rows(tables: dict, ids: list[str], nulls: list[str]) -> dict:
+    """Per animal the facts of the overview row, its sentence and, where nulls disagree, why."""
+    summary, residency = _first_rows(tables.get("summary")), _first_rows(tables.get("residency"))
+    areas = _first_rows(preferred_areas(tables.get("ranges")))
+    tests = tables.get("null_tests")
+    tests = tests if isinstance(tests, pd.DataFrame) and {"animal_id", "null_model"} <= set(tests.columns) else None
+    by_null = {n: _first_rows(tests[tests["null_model"].astype(str) == n]) for n in nulls} if tests is not None else {}
+    ref = reference_null(nulls)
+    motion, states = motion_best(tables.get("motion_models")), time_in_state(tables.get("state_models"))
+    out = {}
+    for aid in ids:
+        s, r = summary.get(aid), residency.get(aid)
+        verdicts = {n: str(by_null[n][aid].get("verdict", "–")) for n in nulls if aid in by_null[n]}
+        medians = {n: _num(by_null[n][aid].get("null_median_m")) for n in nulls if aid in by_null[n]}
+        test = by_null.get(ref, {}).get(aid) if ref else None
+        facts = {"species": None if s is None else s.get("species"), "test": test, "verdicts": verdicts,
+                 "null": ref, "verdict": verdicts.get(ref) if ref else None,
+                 "ratio": ratio_text(test.get("observed_net_m"), test.get("null_median_m")) if test is not None else "",
+                 "pattern": residency_text(r) if r is not None else None,
+                 "candidate_text": candidate_text(r, tests) if r is not None else "–",
+                 "area": areas.get(aid), "motion": motion.get(aid), "states": states.get(aid)}
+        facts["days"] = human.days(s.get("first_time"), s.get("last_time")) if s is not None else math.nan
+        facts["fixes"] = s.get("n_fixes") if s is not None else None
+        facts["candidate"] = facts["candidate_text"].startswith("yes")
+        facts["sentence"] = sentence(facts)
+        facts["why"] = disagreement(verdicts, medians)
+        out[aid] = facts
+    return out
 
 
-def _header(run_info: dict, masked: bool, n_animals: int) -> str:
+def _num(value) -> float:
+    try:
+        return float(value)
+    except (TypeError, ValueError):
+        return math.nan
+
+
+def _overview(rows: dict, nulls: list[str], links: dict, tables: dict) -> str:
+    """The decision-first table: one block per animal (facts, then its sentence), with a search box and legend."""
+    from roamstat.report.figures_inline import interval_svg
+
+    optional = [label for key, _, label in OPTIONAL_COLUMNS if tables.get(key) is not None]
+    head = ["animal", "tracked", f"end distance vs {rows and next(iter(rows.values()))['null'] or 'null'}",
+            "verdict per null", "residency", "range-study candidate", "preferred area (km²)", *optional]
+    blocks = []
+    for aid, f in rows.items():
+        species = f'<br><span class="meta"><em>{esc(f["species"])}</em></span>' if isinstance(f["species"], str) else ""
+        tracked = (f'<span class="nowrap">{human.significant(f["days"])} d</span><br>'
+                   f'<span class="nowrap">{human.number(f["fixes"], 0)} fixes</span>'
+                   if f["fixes"] is not None and not human.missing(f["fixes"]) else "–")
+        test = f["test"]
+        scale = (f'<span class="ratio">{esc(f["ratio"])}</span>' + interval_svg(test) if test is not None else "–")
+        verdicts = " ".join(f'<span class="v v-{esc(v)}">{esc(n)}: {esc(v)}</span>' for n, v in f["verdicts"].items()) or "–"
+        area = "–"
+        if f["area"] is not None:
+            area = f"{esc(area_text(f['area']))}<br><span class=\"meta\">{esc(f['area']['method'])} 95 %</span>"
+        wrap = ' class="nowrap"' if len(aid) <= 16 else ""
+        cells = [f'<a{wrap} href="{esc(links[aid])}">{esc(short_id(aid))}</a>{species}', tracked, scale, verdicts,
+                 esc(f["pattern"] or "–"), esc(f["candidate_text"]), area]
+        if "movement model" in optional:
+            cells.append(esc(f["motion"] or "–"))
+        if "time in state" in optional:
+            cells.append(esc(f["states"] or "–"))
+        says = esc(f["sentence"]) + (f'<br><span class="why">{esc(f["why"])}</span>' if f["why"] else "")
+        search = esc(" ".join(str(x) for x in (aid, f["species"] or "", f["pattern"] or "", *f["verdicts"].values())).lower())
+        blocks.append(f'<tbody data-search="{search}"><tr>' + "".join(f"<td>{c}</td>" for c in cells)
+                      + f'</tr><tr class="says"><td colspan="{len(cells)}">{says}</td></tr></tbody>')
+    table_html = ('<div class="scroll"><table id="overview-table" class="overview"><thead><tr>'
+                  + "".join(f'<th scope="col">{esc(h)}</th>' for h in head) + "</tr></thead>" + "".join(blocks)
+                  + "</table></div>")
+    search = ('<p class="search"><label for="animal-search">Find an animal (id, species, verdict, pattern): </label>'
+              '<input id="animal-search" type="search" placeholder="e.g. resident" autocomplete="off"> '
+              f'<span id="animal-count" class="meta">{len(rows)} animals</span></p>')
+    return ('<h2 id="overview">Deployment overview</h2>' + search + table_html
+            + legend_html(nulls, optional))
+
+
+def _header(run_info: dict, masked: bool, n_animals: int, paged: bool = False) -> str:
     facts = [("roamstat version", run_info.get("version")), ("command line", run_info.get("command_line")),
              ("seed", run_info.get("seed")), ("animals", n_animals), ("rows read", run_info.get("n_read")),
              ("fixes kept", run_info.get("n_kept")), ("rows rejected", run_info.get("n_rejected")),
@@ -191,6 +246,7 @@ def _header(run_info: dict, masked: bool, n_animals: int) -> str:
              '<p class="caution">Statistical verdicts support, not replace, expert judgement. '
              'Exact locations of sensitive species can enable poaching or disturbance: read the '
              '<a href="#cautions">cautions</a> before sharing.</p>',
+             "<details><summary>Run details: version, command line, seed, counts, input files</summary>",
              key_values(facts)]
     if inputs:
         parts.append(f'<p class="meta">Input files:</p><ul class="meta">{inputs}</ul>')
@@ -198,54 +254,7 @@ def _header(run_info: dict, masked: bool, n_animals: int) -> str:
     if projections and not masked:
         rows = "".join(f"<li>{esc(short_id(k))}: <code>{esc(v)}</code></li>" for k, v in projections.items())
         parts.append(f"<details><summary>Projection per animal</summary><ul class=\"meta\">{rows}</ul></details>")
-    return "".join(parts)
-
-
-def _overview(tables: dict, ids: list[str], nulls: list[str], names: dict) -> str:
-    links = {i: "a-" + names[i] for i in ids[:MAX_ANIMAL_SECTIONS]}
-    comparison = comparison_table(tables, ids, nulls)
-    in_state = states_figures.time_in_state(tables.get("state_models"))
-    if in_state:
-        comparison["time in state"] = comparison["animal_id"].map(in_state)
-    comparison = comparison.rename(columns={"animal_id": "animal"})
-    quality = quality_table(tables.get("rejected"))
-    return ('<h2 id="overview">Deployment overview</h2>'
-            '<p class="meta">Verdicts at the run\'s alpha on Benjamini–Hochberg q-values, per null model: '
-            "<em>farther</em> / <em>closer</em> than the null walk ends up, <em>consistent</em> with it, or "
-            "<em>insufficient</em> data.</p>"
-            + table(comparison, links=links, link_column="animal")
-            + '<h2 id="quality">Data quality: rejected rows by reason</h2>' + table(quality))
-
-
-def _animal_section(animal_id: str, name: str, result, tables: dict, written: list, motion: str = "") -> str:
-    parts = [f'<section class="animal" id="a-{esc(name)}"><h3>Animal {esc(short_id(animal_id))}</h3>']
-    if short_id(animal_id) != animal_id:
-        parts.append(f"<details><summary>full id</summary><code>{esc(animal_id)}</code></details>")
-    notes = [result.fitted.note if result and result.fitted else ""]
-    notes += [str(result.residency.get("note", ""))] if result and isinstance(result.residency, dict) else []
-    notes += [str(_range_extras(result).get("note", ""))] if result else []
-    for note in notes:
-        if note and note.strip():
-            parts.append(f'<p class="note">{esc(note)}</p>')
-    summary = animal_rows(tables.get("summary"), animal_id)
-    if len(summary):
-        parts.append(key_values(summary.iloc[0].items()))
-    for key, title in (("fits", "Fitted models"), ("state_models", "Behavioural states (hidden Markov models)"),
-                       ("null_tests", "Null-model tests"),
-                       ("residency", "Residency"), ("ranges", "Home ranges")):
-        rows = animal_rows(tables.get(key), animal_id)
-        if len(rows):
-            parts.append(f"<h4>{esc(title)}</h4>" + table(rows))
-    figs = []
-    for kind, src in written:
-        if src.startswith("figures/"):
-            figs.append(figure(src, CAPTIONS[kind]))
-        else:
-            figs.append(f'<p class="note">{esc(CAPTIONS[kind])} {esc(src)}</p>')
-    if figs:
-        parts.append('<div class="figures">' + "".join(figs) + "</div>")
-    parts.append(motion)  # motion models, smoothed track, semi-variogram, areas (report/motion_figures.py)
-    parts.append("</section>")
+    parts.append("</details>")
     return "".join(parts)
 
 

@@ -9,30 +9,76 @@ id into a figure: headings live in the HTML, where they are escaped.
 from __future__ import annotations
 
 import io
+import threading
 
 import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
-from matplotlib.dates import AutoDateLocator, ConciseDateFormatter
+from matplotlib.dates import AutoDateLocator, ConciseDateFormatter, date2num
 from matplotlib.figure import Figure
+from matplotlib.ticker import MaxNLocator
 from matplotlib.patches import PathPatch
 from matplotlib.path import Path as MplPath
 
-DPI = 90
+DPI = 80  # figures are shown about 440 px wide: 80 dpi x 5 in is enough (display choice, no source)
 NORMAL = (5.0, 3.6)
 SQUARE = (4.2, 4.2)
+#: Fixed margins in inches instead of a layout engine: the constrained layout measured every tick
+#: label of every figure, about half the drawing time (profiled on the sample deployment).
+MARGINS_IN = {"left": 0.78, "right": 0.12, "bottom": 0.5, "top": 0.3}
+PNG_OPTIONS = {"compress_level": 1}  # zlib level 1: ~3x faster than the default 6, files ~30 % larger
 START_COLOUR, END_COLOUR, TRACK_COLOUR, GREY = "#1a7f37", "#c62828", "#1f5fa8", "#9e9e9e"
 
 
-def _new(size, **kwargs):
-    fig = Figure(figsize=size, dpi=DPI, layout="constrained")
+def _new(size, margins=None, **kwargs):
+    fig = Figure(figsize=size, dpi=DPI)
     FigureCanvasAgg(fig)
-    return fig, fig.subplots(**kwargs)
+    m = {**MARGINS_IN, **(margins or {})}
+    width, height = size
+    fig.subplots_adjust(left=m["left"] / width, right=1 - m["right"] / width, bottom=m["bottom"] / height,
+                        top=1 - m["top"] / height, hspace=0.45)
+    axes = fig.subplots(**kwargs)
+    for ax in np.ravel(axes):
+        if ax.name != "polar":
+            ax.locator_params(nbins=5)  # fewer tick objects to build and draw; still readable
+    return fig, axes
+
+
+#: Per process, the figure of each kind and shape, redrawn for the next animal instead of rebuilt:
+#: its axes, tick objects and the renderer's text-size cache survive (about 40 % less drawing time,
+#: measured on the track map). Keyed by thread too, so threads never share a figure.
+_REUSED: dict = {}
+
+
+def _take(key, size, margins=None, **kwargs):
+    """A cleared figure for ``key`` (kind and shape): the process's earlier one, or a new one."""
+    key = (threading.get_ident(), key)  # a threaded worker (Dask) draws on one figure per thread
+    held = _REUSED.get(key)
+    if held is None:
+        held = _REUSED[key] = _new(size, margins, **kwargs)
+        return held
+    fig, axes = held
+    fig.legends.clear()
+    for ax in np.ravel(axes):
+        for artist in [*ax.lines, *ax.collections, *ax.patches, *ax.texts, *ax.images]:
+            artist.remove()
+        if ax.legend_ is not None:
+            ax.legend_.remove()
+        if ax.name != "polar":
+            ax.set_xscale("linear")
+            ax.set_yscale("linear")
+            ax.set_aspect("auto")
+            ax.locator_params(nbins=5)
+        ax.set_xlabel("")
+        ax.set_ylabel("")
+        ax.set_prop_cycle(None)  # the same colours in the same order for every animal
+        ax.relim()
+        ax.set_autoscale_on(True)
+    return held
 
 
 def _png(fig) -> bytes:
     buffer = io.BytesIO()
-    fig.savefig(buffer, format="png", dpi=DPI, metadata={"Software": None})
-    fig.clear()
+    fig.savefig(buffer, format="png", dpi=DPI, metadata={"Software": None}, pil_kwargs=PNG_OPTIONS)
     return buffer.getvalue()
 
 
@@ -76,7 +122,7 @@ def track_map(x_m, y_m, rejected_x_m=None, rejected_y_m=None, masked: bool = Fal
     rx = np.asarray([] if rejected_x_m is None else rejected_x_m, float)
     ry = np.asarray([] if rejected_y_m is None else rejected_y_m, float)
     scale, unit = distance_scale(np.concatenate([x, y, rx, ry]))
-    fig, ax = _new(NORMAL)
+    fig, ax = _take("track", NORMAL)
     if rx.size:
         ax.scatter(rx / scale, ry / scale, s=16, marker="x", color="#7a7a7a", alpha=0.6, linewidths=0.9,
                    label=f"rejected ({rx.size})")
@@ -88,7 +134,7 @@ def track_map(x_m, y_m, rejected_x_m=None, rejected_y_m=None, masked: bool = Fal
         ax.scatter([x[-1] / scale], [y[-1] / scale], s=75, marker="s", color=END_COLOUR, edgecolors="white",
                    zorder=5, label="end")
     _coordinate_labels(ax, unit, masked)
-    ax.legend(fontsize=7, loc="best")
+    ax.legend(fontsize=7, loc="upper right")
     return _png(fig)
 
 
@@ -107,15 +153,17 @@ def step_histogram(step_m, curves, log_axes: bool) -> bytes:
     """
     steps = np.asarray(step_m, float)
     steps = steps[np.isfinite(steps) & (steps > 0)]
-    fig, ax = _new(NORMAL)
+    fig, ax = _take("steps", NORMAL)
     lowest = highest = None
     if steps.size:
         if log_axes:
             bins = np.geomspace(steps.min(), steps.max() * 1.0001, 30)
         else:
             bins = np.linspace(0.0, steps.max() * 1.0001, 30)
-        heights, _, _ = ax.hist(steps, bins=bins, density=True, color="#cfd8e3", edgecolor="#8ea2bb",
-                                label=f"observed ({steps.size})")
+        # One outline artist instead of a patch per bin: same picture, a fraction of the drawing time.
+        heights, _ = np.histogram(steps, bins=bins, density=True)
+        ax.stairs(heights, bins, fill=True, color="#cfd8e3", label=f"observed ({steps.size})")
+        ax.stairs(heights, bins, color="#8ea2bb", linewidth=0.8)
         lowest, highest = heights[heights > 0].min(), heights.max()
     for label, x, density in curves:
         density = np.asarray(density, float)
@@ -130,7 +178,7 @@ def step_histogram(step_m, curves, log_axes: bool) -> bytes:
     ax.set_xlabel("step length (m)" + (", log scale" if log_axes else ""), fontsize=8)
     ax.set_ylabel("density (per m)", fontsize=8)
     ax.tick_params(labelsize=8)
-    ax.legend(fontsize=7)
+    ax.legend(fontsize=7, loc="upper right")
     return _png(fig)
 
 
@@ -149,20 +197,30 @@ def turn_rose(turn_rad, curves) -> bytes:
     """
     turns = np.asarray(turn_rad, float)
     turns = turns[np.isfinite(turns)]
-    fig, ax = _new(SQUARE, subplot_kw={"projection": "polar"})
+    fig, ax = _take("turns", SQUARE, {"left": 0.45, "right": 0.45, "bottom": 0.9, "top": 0.35},
+                    subplot_kw={"projection": "polar"})
     ax.set_theta_zero_location("N")
     ax.set_theta_direction(-1)
     edges = np.linspace(-np.pi, np.pi, 25)
+    top = 0.0
     if turns.size:
         counts, _ = np.histogram(turns, bins=edges)
         density = counts / (turns.size * np.diff(edges))
-        ax.bar(edges[:-1], density, width=np.diff(edges), align="edge", color="#cfd8e3", edgecolor="#8ea2bb",
-               label=f"observed ({turns.size})")
+        # The rose as one closed outline (wedges from the centre), not one bar patch per sector.
+        theta, radius = np.repeat(edges, 2)[1:-1], np.repeat(density, 2)
+        ax.fill(np.mod(np.r_[theta, theta[:1]], 2 * np.pi), np.r_[radius, radius[:1]], facecolor="#cfd8e3",
+                edgecolor="#8ea2bb", linewidth=0.8, label=f"observed ({turns.size})")
+        top = density.max()
     for label, theta, density in curves:
-        ax.plot(np.asarray(theta, float), np.asarray(density, float), linewidth=1.6, label=str(label))
+        density = np.asarray(density, float)
+        ax.plot(np.asarray(theta, float), density, linewidth=1.6, label=str(label))
+        top = max(top, np.nanmax(density, initial=0.0))
+    ax.set_xlim(0.0, 2 * np.pi)  # the whole circle, whatever the outline's extent
+    ax.set_ylim(0.0, 1.05 * top if top > 0 else 1.0)
+    ax.yaxis.set_major_locator(MaxNLocator(4))
     ax.tick_params(labelsize=7)
     ax.set_xticks(np.deg2rad([0, 90, 180, 270]), ["ahead", "right", "back", "left"])
-    fig.legend(fontsize=7, loc="outside lower center", ncols=2)
+    fig.legend(fontsize=7, loc="lower center", ncols=2, frameon=False)
     return _png(fig)
 
 
@@ -181,7 +239,8 @@ def nsd_envelopes(panels, x_label: str) -> bytes:
                             for k in ("observed", "lo", "hi", "mean") if p.get(k) is not None])
     scale, unit = area_scale(every)
     # Panels stacked (not side by side) so each stays legible on a phone-width screen.
-    fig, axes = _new((NORMAL[0], 0.9 + 2.1 * len(panels)), nrows=len(panels), sharex=True, squeeze=False)
+    fig, axes = _take(("nsd", len(panels)), (NORMAL[0], 0.9 + 2.1 * len(panels)), nrows=len(panels), sharex=True,
+                      squeeze=False)
     for ax, panel in zip(axes[:, 0], panels):
         x = np.asarray(panel["x"], float)
         if panel.get("lo") is not None and panel.get("hi") is not None:
@@ -191,7 +250,8 @@ def nsd_envelopes(panels, x_label: str) -> bytes:
             ax.plot(x, np.asarray(panel["mean"], float) / scale, color="#555555", linestyle="--", linewidth=1,
                     label="null mean")
         ax.plot(x, np.asarray(panel["observed"], float) / scale, color="black", linewidth=1.3, label="observed")
-        ax.set_title(f"null model: {panel['name']}", fontsize=9)
+        # A text in the axes, not a title: placing titles measured every tick label again.
+        ax.text(0.0, 1.02, f"null model: {panel['name']}", transform=ax.transAxes, ha="left", va="bottom", fontsize=9)
         ax.set_ylabel(f"NSD ({unit})", fontsize=8)
         ax.tick_params(labelsize=7)
     axes[-1, 0].set_xlabel(x_label, fontsize=8)
@@ -211,19 +271,22 @@ def residency_fit(t, observed, fitted, y_label: str, t_label: str) -> bytes:
     fitted : list of (label, t, values, chosen)
         Fitted curves; the chosen model is drawn bold.
     """
-    fig, ax = _new(NORMAL)
-    ax.scatter(t, np.asarray(observed, float), s=5, color=GREY, label="observed")
+    fig, ax = _take("residency", NORMAL)
+    dates = np.issubdtype(np.asarray(t).dtype, np.datetime64)
+    # Dates as plain day numbers with a date locator: no unit converter stays on the reused axis.
+    as_x = (lambda v: date2num(np.asarray(v, "datetime64[ns]"))) if dates else (lambda v: np.asarray(v, float))
+    ax.scatter(as_x(t), np.asarray(observed, float), s=5, color=GREY, label="observed")
     for label, tt, values, chosen in fitted:
-        ax.plot(tt, np.asarray(values, float), linewidth=2.2 if chosen else 1.0,
+        ax.plot(as_x(tt), np.asarray(values, float), linewidth=2.2 if chosen else 1.0,
                 alpha=1.0 if chosen else 0.7, label=f"{label} (chosen)" if chosen else str(label))
     ax.set_xlabel(t_label, fontsize=8)
     ax.set_ylabel(y_label, fontsize=8)
     ax.tick_params(labelsize=7)
-    if np.issubdtype(np.asarray(t).dtype, np.datetime64):
+    if dates:
         locator = AutoDateLocator(maxticks=6)
         ax.xaxis.set_major_locator(locator)
         ax.xaxis.set_major_formatter(ConciseDateFormatter(locator))
-    ax.legend(fontsize=7)
+    ax.legend(fontsize=7, loc="upper left")
     return _png(fig)
 
 
@@ -245,7 +308,7 @@ def range_contours(x_m, y_m, contours, masked: bool = False) -> bytes:
     ring_values = [np.asarray(r, float) for _, rings in contours for r in rings]
     every = np.concatenate([x, y] + [r.ravel() for r in ring_values]) if ring_values else np.concatenate([x, y])
     scale, unit = distance_scale(every)
-    fig, ax = _new(NORMAL)
+    fig, ax = _take("range", NORMAL)
     ax.scatter(x / scale, y / scale, s=3, color=GREY, alpha=0.5, label="fixes")
     colours = ["#1f5fa8", "#e07b00", "#6a3d9a", "#1a7f37", "#c62828", "#00838f"]
     for i, (label, rings) in enumerate(contours):
@@ -264,7 +327,7 @@ def range_contours(x_m, y_m, contours, masked: bool = False) -> bytes:
         ax.add_patch(outline)
     ax.autoscale_view()
     _coordinate_labels(ax, unit, masked)
-    ax.legend(fontsize=7, loc="best")
+    ax.legend(fontsize=7, loc="upper right")
     return _png(fig)
 
 
@@ -276,7 +339,7 @@ def area_curve(series) -> bytes:
     series : list of (label, n_fixes, area_km2)
         One line per estimator and level.
     """
-    fig, ax = _new(NORMAL)
+    fig, ax = _take("area", NORMAL)
     for label, n, area in series:
         ax.plot(np.asarray(n, float), np.asarray(area, float), marker="o", markersize=3, linewidth=1.2,
                 label=str(label))
@@ -284,5 +347,5 @@ def area_curve(series) -> bytes:
     ax.set_ylabel("area (km²)", fontsize=8)
     ax.set_ylim(bottom=0)
     ax.tick_params(labelsize=7)
-    ax.legend(fontsize=7)
+    ax.legend(fontsize=7, loc="lower right")
     return _png(fig)

@@ -21,6 +21,8 @@ autocorrelated kernel density estimator. Ecology 96, 1182-1188.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import math
 from pathlib import Path
 
@@ -28,10 +30,11 @@ import numpy as np
 import pandas as pd
 from matplotlib.patches import Circle
 
-from roamstat.io.write import atomic_write
 from roamstat.report.figures import GREY, NORMAL, TRACK_COLOUR, _coordinate_labels, _new, _png, distance_scale
-from roamstat.report.html import esc, figure, fmt, table
-from roamstat.report.overview import animal_rows
+from roamstat.report.html import esc, fmt, table
+
+if TYPE_CHECKING:
+    from roamstat.report.sections import Fragment
 
 MOTION_COLUMNS = ["model", "n_params", "aicc", "delta_aicc", "best", "diffusion_m2_s", "sigma_m", "tau_position_s",
                   "tau_velocity_s", "error_sd_m", "error_source"]
@@ -52,33 +55,33 @@ CAPTIONS = {
 }
 
 
-def animal_html(out_dir: Path, name: str, animal_id: str, result, tables: dict, masked: bool) -> str:
-    """The motion and area parts of one animal's report section (figures written to ``out_dir/figures``)."""
+def section(tables: dict, animal) -> "Fragment":
+    """Report section builder: motion-model table, areas side by side, smoothed track, semi-variogram.
+
+    ``tables`` holds this animal's rows of every deployment table; ``animal`` is a
+    :class:`roamstat.report.sections.AnimalView`.
+    """
+    from roamstat.report.sections import Fragment
+
+    models = tables.get("motion_models")
+    models = models if isinstance(models, pd.DataFrame) else pd.DataFrame()
     parts = []
-    models = animal_rows(tables.get("motion_models"), animal_id)
     if len(models):
         parts.append("<h4>Continuous-time motion models</h4>"
                      + table(models[[c for c in MOTION_COLUMNS if c in models.columns]]))
-    areas = animal_rows(tables.get("ranges"), animal_id)
-    if len(areas):
+    areas = tables.get("ranges")
+    if isinstance(areas, pd.DataFrame) and len(areas) and "method" in areas:
         parts.append(areas_html(areas, models))
-    figs = []
-    for kind, draw in (("smoothed", lambda: smoothed_figure(animal_rows(tables.get("track_smoothed"), animal_id),
-                                                            animal_rows(tables.get("fixes"), animal_id), masked)),
-                       ("semivariance", lambda: semivariance_figure(getattr(result, "motion", None)))):
-        try:
-            png = draw()
-        except (ValueError, TypeError, IndexError, KeyError) as error:
-            figs.append(f'<p class="note">{esc(CAPTIONS[kind])} figure not drawn ({type(error).__name__}: '
-                        f"{esc(error)})</p>")
-            continue
-        if png is not None:
-            file = f"{name}-{kind}.png"
-            atomic_write(Path(out_dir) / "figures" / file, png)
-            figs.append(figure("figures/" + file, CAPTIONS[kind]))
-    if figs:
-        parts.append('<div class="figures">' + "".join(figs) + "</div>")
-    return "".join(parts)
+    fragment = Fragment(html="".join(parts))
+    smoothed = tables.get("track_smoothed")
+    if isinstance(smoothed, pd.DataFrame) and len(smoothed):
+        track = animal.track if animal.track is not None else pd.DataFrame({"x_m": [], "y_m": []})
+        fragment.figures.append(("smoothed", CAPTIONS["smoothed"],
+                                 lambda: smoothed_figure(smoothed, track, animal.masked)))
+    motion = getattr(animal.result, "motion", None)
+    if motion is not None:
+        fragment.figures.append(("semivariance", CAPTIONS["semivariance"], lambda: semivariance_figure(motion)))
+    return fragment
 
 
 def areas_html(ranges_a: pd.DataFrame, models_a: pd.DataFrame) -> str:

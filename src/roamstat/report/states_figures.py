@@ -284,3 +284,19 @@ def state_jobs(states, track: pd.DataFrame | None, masked: bool = False) -> list
     jobs.append(("state_budget", CAPTIONS["state_budget"],
                  lambda: state_budget(state, runs, best["stationary_p"], best["mean_dwell_s"])))
     return jobs
+
+
+def section(tables: dict, animal) -> "Fragment":
+    """Report section builder: the state-model table and the four state figures (none without a model)."""
+    from roamstat.report.html import table
+    from roamstat.report.sections import Fragment
+
+    states = getattr(animal.result, "states", None)
+    models = tables.get("state_models")
+    html = ""
+    if isinstance(models, pd.DataFrame) and len(models) and "best" in models:
+        best = models[models["best"].astype(bool)]
+        shown = [c for c in ("n_states", "state", "step_family", "turn_family", "stationary_p", "mean_dwell_s",
+                             "bic", "n_best_starts") if c in best.columns]
+        html = "<h4>Behavioural states (selected model)</h4>" + table(best[shown])
+    return Fragment(html=html, figures=state_jobs(states, animal.track, animal.masked))

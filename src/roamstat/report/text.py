@@ -32,7 +32,8 @@ Hochberg 1995).</p>
 <p>Residency patterns were classified by fitting the NSD-through-time models of Bunnefeld et al.
 (2011) and ranking them by AIC. First home-range estimates are
 {_and([m.prose for m in RANGE_METHODS.values()])}, with the area–sample-size curve (Harris et al. 1990)
-and Schoener's ratio as an autocorrelation diagnostic (Swihart &amp; Slade 1985). Fix-rate and
+and Schoener's ratio as an autocorrelation diagnostic (Swihart &amp; Slade 1985); areas from fewer than 30 fixes
+are reported as insufficient (Seaman et al. 1999). Fix-rate and
 positional-error considerations follow Bjørneraas et al. (2010); path tortuosity measures follow
 Benhamou (2004).</p>
 """
@@ -65,6 +66,8 @@ REFERENCES = [
     "American Midland Naturalist 37: 223–249.",
     "Myllymäki, M., Mrkvička, T., Grabarnik, P., Seijo, H. &amp; Hahn, U. (2017). Global envelope tests for "
     "spatial processes. Journal of the Royal Statistical Society B 79: 381–404.",
+    "Seaman, D. E., Millspaugh, J. J., Kernohan, B. J., Brundige, G. C., Raedeke, K. J. &amp; Gitzen, R. A. "
+    "(1999). Effects of sample size on kernel home range estimates. Journal of Wildlife Management 63: 739–747.",
     "Swihart, R. K. &amp; Slade, N. A. (1985). Testing for independence of observations in animal movements. "
     "Ecology 66: 1176–1184.",
     "Turchin, P. (1998). Quantitative Analysis of Movement: Measuring and Modeling Population Redistribution "
@@ -114,3 +117,39 @@ MASKED_NOTE = ("Locations are masked: maps show coordinates relative to a hidden
 UNMASKED_NOTE = ("Locations are NOT masked: maps are in metres from each animal's first fix and the "
                  "projections below reveal where the animals were. Run with --mask-locations before "
                  "sharing this report outside your team if the species or site is sensitive.")
+
+
+def legend_html(nulls, optional=()) -> str:
+    """The overview's legend: every term of the table, with the run's null models from the registry."""
+    from roamstat.registry import NULLS
+
+    terms = [
+        ("tracked", "days from the first to the last kept fix, and the number of kept fixes."),
+        ("end distance vs null", "how far the animal ended from its start (net displacement), as a multiple "
+         "of the median end distance of its null walks. The bar is the null walks' 95 % range, the tick their "
+         "median and the dot the animal (log scale from 1/20 to 20 times the median; red beyond the range, "
+         "green below it)."),
+        ("verdict per null", "<em>farther</em> / <em>closer</em>: the animal ended farther from / closer to its "
+         "start than that null walk explains (Benjamini–Hochberg q below the run's alpha); <em>consistent</em>: "
+         "no evidence either way (not proof of random movement); <em>insufficient</em>: too little data."),
+    ]
+    terms += [(name, NULLS[name].summary) for name in nulls if name in NULLS]
+    terms += [
+        ("q", "the p-value adjusted for testing many animals (false discovery rate; Benjamini &amp; Hochberg 1995)."),
+        ("residency", "the net-squared-displacement pattern through time with the best AIC (Bunnefeld et al. 2011): "
+         "<em>sedentary</em>, <em>resident</em> (settles in a range), <em>disperser</em> (leaves for good), "
+         "<em>migrant</em> (leaves and returns), <em>nomad</em> (keeps drifting); <em>insufficient</em> names "
+         "the fixes needed."),
+        ("range-study candidate", "resident or sedentary and not farther than the unbounded random walk: worth a "
+         "home-range study; the reason follows."),
+        ("preferred area", "the 95 % kernel home range to cite: the autocorrelation-aware estimate when it was "
+         "computed, else the reference-bandwidth KDE (Worton 1989), with its interval when given; "
+         "<em>insufficient</em> below the fixes a kernel estimate needs."),
+    ]
+    if "movement model" in optional:
+        terms.append(("movement model", "the continuous-time movement model with the best AICc for this animal."))
+    if "time in state" in optional:
+        terms.append(("time in state", "long-run share of time in each behavioural state of the best hidden "
+                      "Markov model (state 1 has the shortest steps)."))
+    rows = "".join(f"<dt>{t}</dt><dd>{d}</dd>" for t, d in terms)
+    return f'<h3 id="legend">Legend</h3><dl class="legend">{rows}</dl>'
