@@ -11,14 +11,17 @@ from __future__ import annotations
 import argparse
 import dataclasses
 import difflib
+import logging
+import signal
 import sys
 import warnings
 from collections import Counter
 
 from roamstat import __version__
 from roamstat.config import DEFAULT_NULLS, MIN_REPLICATES, Config, check_config
-from roamstat.errors import RoamstatError
+from roamstat.errors import RoamstatError, Stopped
 from roamstat.registry import NULLS
+from roamstat.shown import shown
 
 COMMANDS = {
     "inspect": "print what roamstat detects in the files (columns, animals, schedule, projection); writes nothing",
@@ -101,7 +104,8 @@ _OPTIONS = (
     ("output", (
         ("--out", dict(required=True, metavar="DIR", help="output folder")),
         ("--force", dict(action="store_true",
-                         help="write into a non-empty folder that is not an earlier roamstat output")),
+                         help="keep files of your own found in --out (each command replaces the folder's "
+                              "earlier roamstat outputs as a whole)")),
         ("--format", dict(choices=("csv", "parquet"), default="csv", help="table format (default csv)")),
         ("--low-memory", dict(action="store_true", help="read in chunks and work a batch of animals at a time "
                                                         "(big deployments; same tables)")),
@@ -204,22 +208,48 @@ def main(argv: list[str] | None = None) -> int:
         _unknown_option_error(parser, args.command, extras)
     if not args.debug:
         # Edge cases (a zero-variance fit, a divergent moment) are handled where they arise and
-        # reported in the tables' notes; numpy's floating-point chatter would only alarm users.
-        warnings.simplefilter("ignore", RuntimeWarning)
+        # reported in the tables' notes; library warnings (numpy's floating-point chatter,
+        # matplotlib's missing-font messages, which come through logging) would only alarm users.
+        warnings.simplefilter("ignore")
+        logging.getLogger().addHandler(logging.NullHandler())
+        logging.getLogger("matplotlib").setLevel(logging.ERROR)
+    previous = _on_sigterm(_stop)
     try:
         return _dispatch(args, argv)
     except RoamstatError as exc:
-        print(f"roamstat: error: {exc}", file=sys.stderr)
+        print(f"roamstat: error: {shown(exc)}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
-        print("roamstat: interrupted; outputs already written are complete, the rest were not written", file=sys.stderr)
-        return 130
+        return _stopped(signal.SIGINT)
+    except Stopped as exc:
+        return _stopped(exc.signum)
     except Exception as exc:  # a bug, not bad input
         if args.debug:
             raise
-        print(f"roamstat: internal error: {type(exc).__name__}: {exc} "
+        print(f"roamstat: internal error: {type(exc).__name__}: {shown(exc)} "
               "(this is a bug; rerun with --debug for the traceback and report it)", file=sys.stderr)
         return 1
+    finally:
+        _on_sigterm(previous)
+
+
+def _on_sigterm(handler):
+    """Install a SIGTERM handler; returns the previous one (None off the main thread, where Python allows none)."""
+    try:
+        return signal.signal(signal.SIGTERM, handler) if handler is not None else None
+    except ValueError:
+        return None
+
+
+def _stop(signum, frame):
+    raise Stopped(signum)
+
+
+def _stopped(signum: int) -> int:
+    """Say what a stop leaves behind (never that outputs are complete); exit 128 + signal number."""
+    print(f"roamstat: stopped by {signal.Signals(signum).name}; no partial outputs were kept: the output folder "
+          "holds one whole run, its earlier one unless this run had already finished", file=sys.stderr)
+    return 128 + signum
 
 
 def _dispatch(args: argparse.Namespace, argv: list[str]) -> int:
@@ -227,16 +257,16 @@ def _dispatch(args: argparse.Namespace, argv: list[str]) -> int:
     if args.command == "inspect":
         from roamstat.inspect import inspect_text
 
-        print(inspect_text(args.files, cfg))
+        print(shown(inspect_text(args.files, cfg)))
         return 0
     from roamstat.io.times import unused_zone_note
     from roamstat.run import run_command
 
     result = run_command(args.command, args.files, args.out, cfg, argv)
     if note := unused_zone_note(cfg.tz, result.loaded.read.tz_note):
-        print(f"roamstat: {note}", file=sys.stderr)
+        print(f"roamstat: {shown(note)}", file=sys.stderr)
     if not cfg.quiet:
-        print(closing_summary(result), file=sys.stderr)
+        print(shown(closing_summary(result)), file=sys.stderr)
     return 0
 
 

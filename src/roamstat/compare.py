@@ -33,6 +33,7 @@ from scipy import stats
 
 from roamstat.config import NULL_MODELS
 from roamstat.nulls import NullUnavailable, build_null, short_steps
+from roamstat.split import simulate_replicates
 
 MAX_CURVE_POINTS = 200  # NSD curve evaluated at most here (memory and figure size, no source)
 ENVELOPE = (0.025, 0.975)  # pointwise and endpoint central 95 % interval
@@ -235,7 +236,8 @@ def test_animal(fixes_a: pd.DataFrame, steps_a: pd.DataFrame, fits, nominal_dt_s
         if why:
             row["note"] = _join(why, row["note"])
         else:
-            row_stats, curves[name] = _one_null(null, obs, int(cfg.replicates), children[name])
+            row_stats, curves[name] = _one_null(null, obs, int(cfg.replicates), children[name],
+                                                getattr(cfg, "workers", 1))
             row.update(row_stats)
         rows.append(row)
     return pd.DataFrame(rows, columns=ROW_COLUMNS), curves
@@ -262,9 +264,9 @@ def _observed(fixes_a, steps_a, nominal_dt_s, cfg) -> tuple[dict, str]:
     return obs, ""
 
 
-def _one_null(null, obs: dict, replicates: int, rng: np.random.Generator) -> tuple[dict, dict]:
+def _one_null(null, obs: dict, replicates: int, rng: np.random.Generator, workers: int = 1) -> tuple[dict, dict]:
     idx = obs["idx"]
-    nsd = null.simulate(obs["n_steps"], replicates, rng, idx)
+    nsd = simulate_replicates(null, obs["n_steps"], replicates, rng, idx, workers)
     net = np.sqrt(nsd[:, -1])
     p_farther, p_closer, p_value = monte_carlo_p(obs["net_m"], net)
     median, q025, q975 = np.quantile(net, [0.5, *ENVELOPE])

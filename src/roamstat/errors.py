@@ -17,3 +17,11 @@ class NothingKept(RoamstatError):
     def __init__(self, message: str, rejected) -> None:
         super().__init__(message)
         self.rejected = rejected
+
+
+class Stopped(BaseException):
+    """SIGTERM (or another stop signal) arrived: unwind like Ctrl-C, so every clean-up runs."""
+
+    def __init__(self, signum: int) -> None:
+        super().__init__(signum)
+        self.signum = signum

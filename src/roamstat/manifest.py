@@ -2,15 +2,19 @@
 
 from __future__ import annotations
 
+import hashlib
+import os
 import platform
 import sys
 from importlib import metadata
+from pathlib import Path
 
 from roamstat import __version__
 from roamstat.config import Config
 from roamstat.pipeline import Loaded
 
 MANIFEST = "manifest.json"
+_HASH_BLOCK = 1 << 20
 
 
 def visible_projections(loaded: Loaded, cfg: Config) -> dict:
@@ -69,3 +73,43 @@ def build_manifest(command: str, loaded: Loaded, cfg: Config, argv, stages: list
         "duration_s": round(duration_s, 3),
         "executable": sys.executable,
     }
+
+
+def folder_files(folder: Path, names=None) -> list[dict]:
+    """Every regular file under ``folder`` (or under its entries ``names``) but the manifest, with size and sha256.
+
+    Paths are relative, with ``/``; symbolic links are listed as links, never followed.
+    """
+    folder = Path(folder)
+    tops = [folder / n for n in names] if names is not None else [folder]
+    found = []
+    for top in tops:
+        if top.is_symlink() or top.is_file():
+            found.append(top)
+            continue
+        for root, dirs, files in os.walk(top):  # os.walk does not descend into linked folders
+            found += [Path(root) / f for f in files] + [Path(root) / d for d in dirs if (Path(root) / d).is_symlink()]
+    entries = []
+    for path in sorted(found):
+        rel = path.relative_to(folder).as_posix()
+        if rel == MANIFEST:
+            continue
+        if path.is_symlink():
+            entries.append({"path": rel, "symlink_to": os.readlink(path)})
+        else:
+            entries.append({"path": rel, "size_bytes": path.stat().st_size, "sha256": file_sha256(path)})
+    return entries
+
+
+def file_sha256(path: Path) -> str:
+    digest = hashlib.sha256()
+    with open(path, "rb") as fh:
+        while block := fh.read(_HASH_BLOCK):
+            digest.update(block)
+    return digest.hexdigest()
+
+
+def outcome_manifest(command: str, cfg: Config, argv, outcome: str) -> dict:
+    """The manifest of a command that stopped with a user error but still wrote a table (rejected.csv)."""
+    return {"roamstat": __version__, "command": command, "command_line": ["roamstat", *(argv or [])],
+            "parameters": cfg.as_dict(), "seed": cfg.seed, "outcome": outcome}

@@ -19,41 +19,10 @@ from roamstat.config import Config
 from roamstat.errors import NothingKept, RoamstatError
 from roamstat.io.read import ReadResult
 from roamstat.io.write import write_csv, write_json
-from roamstat.manifest import MANIFEST
 from roamstat.pipeline import Loaded
 
 if TYPE_CHECKING:
     from roamstat.ranges.mask import HiddenOrigin
-
-#: Everything a run may leave in its folder; a run interrupted before its manifest leaves only these.
-OUTPUT_NAMES = {f"{stem}.{ext}" for stem in ("fixes", "rejected", "steps", "summary", "fits", "null_tests",
-                                             "residency", "ranges") for ext in ("csv", "parquet")} | \
-    {"ranges.geojson", "report.html", "figures", MANIFEST}
-
-
-def _earlier_output(out_dir: Path) -> bool:
-    """An empty folder, one with a manifest, or one holding only roamstat outputs (an interrupted run)."""
-    if (out_dir / MANIFEST).is_file():
-        return True
-    return all(p.name in OUTPUT_NAMES or (p.name.startswith(".") and p.name.endswith(".part")) for p in out_dir.iterdir())
-
-
-def prepare_out_dir(out_dir: Path, inputs, force: bool) -> Path:
-    """Refuse an output folder that is an input, or holds foreign files (unless --force)."""
-    out_dir = Path(out_dir)
-    resolved_inputs = {Path(p).resolve() for p in inputs}
-    if out_dir.resolve() in resolved_inputs:
-        raise RoamstatError(f"--out {out_dir} is one of the input files; choose a new folder for the outputs")
-    if out_dir.exists() and not out_dir.is_dir():
-        raise RoamstatError(f"--out {out_dir} exists and is not a folder; choose a new folder for the outputs")
-    if out_dir.is_dir() and not _earlier_output(out_dir) and not force:
-        raise RoamstatError(
-            f"--out {out_dir} is a non-empty folder that holds no earlier roamstat output; "
-            "choose a new or empty folder, or add --force to write into it"
-        )
-    out_dir.mkdir(parents=True, exist_ok=True)
-    return out_dir
-
 
 def masking_origin(cfg: Config, vector_sum: np.ndarray, given: HiddenOrigin | None = None) -> HiddenOrigin | None:
     """The run's one hidden origin: None unless masking; ``given`` (tests) or a fresh draw.
@@ -84,12 +53,12 @@ def write_table(table: pd.DataFrame, path: Path, cfg: Config) -> None:
         write_csv(table, path)
 
 
-def all_rejected(exc: NothingKept, out_dir: Path, cfg: Config) -> None:
-    """Write rejected.csv for an input with no usable fix, then say where it is."""
-    path = out_dir / output_name("rejected", cfg)
-    write_table(rejected_for_output(exc.rejected, cfg), path, cfg)
-    raise RoamstatError(f"{exc}; every row's reason is in {path}; relax the screening options "
-                        "that rejected them, or switch a rule off with --keep CODE") from None
+def all_rejected(exc: NothingKept, staging: Path, out_dir: Path, cfg: Config) -> RoamstatError:
+    """Write rejected.csv (into ``staging``) for an input with no usable fix; the error to raise names it in ``out_dir``."""
+    name = output_name("rejected", cfg)
+    write_table(rejected_for_output(exc.rejected, cfg), staging / name, cfg)
+    return RoamstatError(f"{exc}; every row's reason is in {out_dir / name}; relax the screening options "
+                         "that rejected them, or switch a rule off with --keep CODE")
 
 
 def write_tables(out_dir: Path, loaded: Loaded, tables: dict, cfg: Config) -> None:

@@ -4,11 +4,18 @@
 per-animal tasks and returns the results in task order, whichever backend ran them and in
 whatever order they finished, so outputs are identical across backends.
 Progress is reported as animals finish.
+
+Stopping is prompt: when the run is interrupted (Ctrl-C, SIGTERM, an error)
+the executor cancels the queued work and terminates its workers instead of
+waiting for them; workers ignore Ctrl-C themselves (the parent decides) and,
+on Linux, are killed by the kernel if the parent dies without cleaning up.
 """
 
 from __future__ import annotations
 
+import ctypes
 import os
+import signal
 from collections.abc import Callable, Sequence
 from concurrent.futures import ProcessPoolExecutor, as_completed
 
@@ -55,17 +62,23 @@ class AnimalExecutor:
     def __enter__(self) -> AnimalExecutor:
         return self
 
-    def __exit__(self, *exc) -> None:
-        self.close()
+    def __exit__(self, exc_type, *exc) -> None:
+        self.close(abort=exc_type is not None)
 
-    def close(self) -> None:
-        """Shut the pool or client down (idempotent)."""
+    def close(self, abort: bool = False) -> None:
+        """Shut the pool or client down (idempotent); ``abort`` cancels queued work and stops workers now."""
         if self._pool is not None:
-            self._pool.shutdown()
-            self._pool = None
+            pool, self._pool = self._pool, None
+            if abort:
+                _terminate(pool)
+            else:
+                pool.shutdown()
         if self._client is not None:
-            self._client.close()
-            self._client = None
+            client, self._client = self._client, None
+            if abort:
+                client.close(timeout=5)
+            else:
+                client.close()
 
     def map(self, func: Callable, tasks: Sequence, desc: str = "animals") -> list:
         """``[func(t) for t in tasks]`` on this executor's backend, results in task order."""
@@ -82,7 +95,8 @@ class AnimalExecutor:
                     bar.update(1)
                 return results
             if self._pool is None:
-                self._pool = ProcessPoolExecutor(max_workers=self.workers)
+                self._pool = ProcessPoolExecutor(max_workers=self.workers, initializer=_worker_start,
+                                                 initargs=(os.getpid(),))
             return _run_pool(func, tasks, self.workers, self._pool, bar)
         finally:
             bar.close()
@@ -131,6 +145,34 @@ def _run_pool(func, tasks, workers, pool, bar) -> list:
     return results
 
 
+def _terminate(pool: ProcessPoolExecutor) -> None:
+    """Cancel what is queued and stop the workers at once (no orphan survives the parent)."""
+    processes = list((pool._processes or {}).values())  # the stdlib offers no public way to stop a busy worker
+    pool.shutdown(wait=False, cancel_futures=True)
+    for process in processes:
+        process.terminate()
+    for process in processes:
+        process.join(timeout=3)
+        if process.is_alive():
+            process.kill()
+            process.join(timeout=3)
+
+
+_PR_SET_PDEATHSIG = 1  # linux/prctl.h
+
+
+def _worker_start(parent_pid: int) -> None:
+    """In each worker: leave Ctrl-C to the parent, die with it, take SIGTERM plainly."""
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)  # a forked worker would inherit the parent's handler
+    try:
+        ctypes.CDLL(None, use_errno=True).prctl(_PR_SET_PDEATHSIG, signal.SIGKILL)
+    except (OSError, AttributeError):
+        pass  # not Linux: the pool's own broken-pipe handling ends the worker, later
+    if os.getppid() != parent_pid:  # the parent died before the line above took effect
+        os._exit(1)
+
+
 def _run_batch(func, tasks) -> list:
     return [func(task) for task in tasks]
 
@@ -141,7 +183,11 @@ def _run_dask(func, tasks, client, bar) -> list:
     futures = client.map(func, list(tasks), pure=False)
     index = {f.key: i for i, f in enumerate(futures)}
     results: list = [None] * len(tasks)
-    for future in dask_completed(futures):
-        results[index[future.key]] = future.result()
-        bar.update(1)
+    try:
+        for future in dask_completed(futures):
+            results[index[future.key]] = future.result()
+            bar.update(1)
+    except BaseException:
+        client.cancel(futures)  # the cluster stops this run's work; the cluster itself stays up
+        raise
     return results

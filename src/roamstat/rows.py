@@ -77,4 +77,7 @@ def located(fixes_a: pd.DataFrame) -> pd.DataFrame:
     keep = observed_mask(fixes_a) & fixes_a["time"].notna().to_numpy()
     for column in ("lat", "lon", "x_m", "y_m"):
         keep &= np.isfinite(fixes_a[column].to_numpy(float))
-    return fixes_a[keep].sort_values("time", kind="stable").reset_index(drop=True)
+    kept = fixes_a if keep.all() else fixes_a[keep]
+    if not kept["time"].is_monotonic_increasing:  # sorting is the costly part for short tracks
+        kept = kept.sort_values("time", kind="stable")
+    return kept.reset_index(drop=True)

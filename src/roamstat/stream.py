@@ -1,8 +1,9 @@
 """The pipeline animal by animal, for deployments too big to hold in memory at once.
 
 ``--low-memory`` reads each input in record chunks (:mod:`roamstat.io.chunks`),
-spills every animal's rows to its own pickled parts (exact dtypes) in a scratch folder
-inside ``--out``, then screens, projects, measures and analyses a batch of
+spills every animal's rows as pickled parts (exact dtypes) to one anonymous
+scratch file in the staging folder (:mod:`roamstat.spill`: no name on disk,
+gone with the process, enciphered under ``--mask-locations``), then screens, projects, measures and analyses a batch of
 animals at a time, appending to fixes.csv and steps.csv as it goes.  Peak
 memory then grows with the largest animal (times the batch size), not with
 the file.  The tables are byte-identical to those of an ordinary run: every
@@ -13,9 +14,6 @@ The run's one executor and one hidden origin (masking) serve every batch.
 
 from __future__ import annotations
 
-import hashlib
-import shutil
-import tempfile
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -35,6 +33,7 @@ from roamstat.parallel import AnimalExecutor
 from roamstat.pipeline import (PER_ANIMAL_STAGES, Loaded, RunResult, StageClock, analyse_animals,
                                combine_rejected, concat_tables, deployment_tables)
 from roamstat.screen import screen
+from roamstat.spill import SpillFile
 from roamstat.track import compute_steps, prepare_fixes, summarise
 
 if TYPE_CHECKING:
@@ -58,22 +57,22 @@ def streamed(paths, stages: tuple, out_dir: Path, cfg: Config, clock: StageClock
     The run's hidden origin (masking) is drawn once, after reading, from the
     positions of every row read, and used for every batch.
     """
-    scratch = Path(tempfile.mkdtemp(prefix=".spill-", dir=out_dir))
+    scratch = SpillFile(out_dir, encrypt=cfg.mask_locations)
     try:
         with clock("read"):
             spill = _spill(paths, cfg, scratch, chunk_records)
         run_origin = masking_origin(cfg, spill.position_sum, origin)
         return _process(spill, stages, out_dir, cfg, clock, executor, run_origin, batch_animals)
     finally:
-        shutil.rmtree(scratch, ignore_errors=True)
+        scratch.close()
 
 
 class _Spill:
     """Where each animal's rows went, plus what reading learnt."""
 
-    def __init__(self, folder: Path):
-        self.folder = folder
-        self.parts: dict[str, list[Path]] = {}
+    def __init__(self, scratch: SpillFile):
+        self.scratch = scratch
+        self.parts: dict[str, list[tuple[int, int]]] = {}
         self.columns: list[str] = []
         self.read_rejected: list[pd.DataFrame] = []
         self.files: list[dict] = []
@@ -86,18 +85,15 @@ class _Spill:
         self.columns += [c for c in chunk.columns if c not in self.columns]
         self.position_sum += unit_vector_sum(chunk["lat"], chunk["lon"])
         for aid, group in chunk.groupby("animal_id", sort=False):
-            key = hashlib.sha256(str(aid).encode("utf-8", "surrogatepass")).hexdigest()[:24]
-            part = self.folder / f"{key}-{len(self.parts.get(aid, []))}.pkl"
-            group.to_pickle(part)
-            self.parts.setdefault(aid, []).append(part)
+            self.parts.setdefault(aid, []).append(self.scratch.put(group))
 
     def rows_of(self, animals) -> pd.DataFrame:
-        frames = [pd.read_pickle(p) for aid in animals for p in self.parts[aid]]
+        frames = [self.scratch.get(p) for aid in animals for p in self.parts[aid]]
         # Rows in file and line order, columns as a whole-file read would lay them out.
         return pd.concat(frames, ignore_index=True).reindex(columns=self.columns)
 
 
-def _spill(paths, cfg: Config, scratch: Path, chunk_records: int) -> _Spill:
+def _spill(paths, cfg: Config, scratch: SpillFile, chunk_records: int) -> _Spill:
     spill = _Spill(scratch)
     for path in paths:
         file_info = None

@@ -19,7 +19,7 @@ from pathlib import Path
 import numpy as np
 
 from roamstat.config import Config
-from roamstat.io.csvsniff import decode_plan, line_terminator, load_bytes
+from roamstat.io.csvsniff import check_sizes, decode_plan, line_terminator, load_bytes
 from roamstat.io.read import ReadResult, read_inputs
 
 
@@ -63,14 +63,15 @@ def read_in_chunks(path: str, cfg: Config, chunk_records: int) -> Iterator[ReadR
 
 def _splittable(raw: bytes, path: Path):
     """(UTF-8 bytes, line terminator) when the file can be split at line ends, else None."""
-    if path.suffix.lower() in (".gpx", ".parquet") or raw.lstrip()[:1] == b"<" or b'"' in raw:
-        return None
+    if path.suffix.lower() in (".gpx", ".parquet") or raw.lstrip()[:1] == b"<" or b'"' in raw or b"\x00" in raw:
+        return None  # NUL bytes too: their rows are flagged by the whole-file reader
     if raw.startswith((b"\xff\xfe", b"\xfe\xff")):
         return None
     data, encoding, _notes = decode_plan(raw, path)
     if encoding == "latin-1":
         data = data.decode("latin-1").encode("utf-8")
     term, _ending = line_terminator(data)
+    check_sizes(data, term, path)  # before any chunk is cut, so the error names the file's own line
     return data, term
 
 

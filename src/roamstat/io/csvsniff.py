@@ -3,8 +3,15 @@
 What is detected, and how:
 
 * Encoding: UTF-8 (a byte-order mark is removed), UTF-16 with a byte-order
-  mark, else Latin-1 (ISO 8859-1) as a reported fallback.  A file with NUL
-  bytes and no UTF-16 mark is refused as not text.
+  mark or, without one, from its zero-byte pattern (ASCII text in UTF-16 has
+  a zero in every other byte), else Latin-1 (ISO 8859-1) as a reported
+  fallback.  A file where more than a tenth of the lines hold NUL bytes is
+  refused as not text; a stray NUL rejects only its record (``nul_byte``).
+* Size limits, checked on the bytes before any parsing so that a file with no
+  line breaks is refused in a second rather than parsed into a huge table:
+  a physical line longer than ``MAX_LINE_BYTES`` (1 MiB) or a record with
+  more than ``MAX_FIELDS`` fields is refused, naming its line.  Memory while
+  reading is then bounded by a small multiple of the file size.
 * Line endings: LF, CRLF or bare CR (the latter when the file has no LF).
 * Delimiter: comma, semicolon or tab, whichever splits the header and the
   first lines into the same number (> 1) of fields most consistently.
@@ -37,6 +44,10 @@ DELIMITERS = (",", ";", "\t")
 DELIMITER_NAMES = {",": "comma", ";": "semicolon", "\t": "tab"}
 _QUOTE, _LF, _CR, _SPACE = 34, 10, 13, 32
 _SAMPLE_LINES = 50
+MAX_LINE_BYTES = 1 << 20  # no collar export has a 1 MiB line (judgement, no source)
+MAX_FIELDS = 5000  # columns per record (judgement, no source)
+BINARY_NUL_LINES = 0.1  # more lines with NUL bytes than this fraction: not a text file (judgement, no source)
+_UTF16_SAMPLE = 4096
 
 
 @dataclass
@@ -51,6 +62,7 @@ class RawTable:
     encoding: str
     delimiter: str
     notes: list[str] = field(default_factory=list)
+    nul_rows: np.ndarray | None = None  # True for records that held a NUL byte (restored in ``values``)
 
 
 def load_bytes(path: Path) -> bytes:
@@ -71,21 +83,73 @@ def decode_plan(data: bytes, path: Path) -> tuple[bytes, str, list[str]]:
         return data[3:], "utf-8-sig", ["UTF-8 byte-order mark removed"]
     for bom, name in ((b"\xff\xfe", "utf-16-le"), (b"\xfe\xff", "utf-16-be")):
         if data.startswith(bom):
-            try:
-                text = data[len(bom):].decode(name)
-            except UnicodeDecodeError as exc:
-                raise RoamstatError(f"{path} starts like UTF-16 text but is not valid UTF-16 (byte {exc.start}); "
-                                    "save it again as UTF-8 CSV") from exc
-            return text.encode("utf-8"), "utf-8", [f"{name.upper()} text (byte-order mark) converted to UTF-8"]
+            return _from_utf16(data[len(bom):], name, path, "byte-order mark")
     if b"\x00" in data:
-        raise RoamstatError(f"{path} holds NUL bytes, so it is not a text (CSV) file; "
-                            "export it from the spreadsheet or collar software as CSV")
+        if name := _utf16_by_zeros(data):
+            return _from_utf16(data, name, path, "no byte-order mark, recognised by its zero bytes")
+        term, _ending = line_terminator(data)
+        with_nul, n_lines = nul_lines(data, term).size, data.count(bytes([term])) + 1
+        if with_nul > BINARY_NUL_LINES * n_lines:
+            raise RoamstatError(f"{path} holds NUL bytes on {with_nul} of {n_lines} lines, so it is not a text "
+                                "(CSV) file; export it from the spreadsheet or collar software as CSV")
     try:
         data.decode("utf-8")
     except UnicodeDecodeError as exc:
         return data, "latin-1", [f"not valid UTF-8 (byte {exc.start}); read as Latin-1 (ISO 8859-1): "
                                  "check accented names, or save the file as UTF-8"]
     return data, "utf-8", []
+
+
+def _from_utf16(data: bytes, name: str, path: Path, how: str) -> tuple[bytes, str, list[str]]:
+    try:
+        text = data.decode(name)
+    except UnicodeDecodeError as exc:
+        raise RoamstatError(f"{path} looks like UTF-16 text but is not valid UTF-16 (byte {exc.start}); "
+                            "save it again as UTF-8 CSV") from exc
+    return text.encode("utf-8"), "utf-8", [f"{name.upper()} text ({how}) converted to UTF-8"]
+
+
+def _utf16_by_zeros(data: bytes) -> str | None:
+    """'utf-16-le' or 'utf-16-be' when the zeros fall on every other byte, as in mostly-ASCII UTF-16."""
+    sample = np.frombuffer(data[: _UTF16_SAMPLE - _UTF16_SAMPLE % 2 if len(data) > _UTF16_SAMPLE else len(data) // 2 * 2],
+                           dtype=np.uint8)
+    if sample.size < 4:
+        return None
+    zero_even, zero_odd = (sample[0::2] == 0).mean(), (sample[1::2] == 0).mean()
+    if zero_odd > 0.6 and zero_even < 0.05:
+        return "utf-16-le"
+    if zero_even > 0.6 and zero_odd < 0.05:
+        return "utf-16-be"
+    return None
+
+
+def check_sizes(data: bytes, term: int, path: Path) -> None:
+    """Refuse a line longer than MAX_LINE_BYTES before anything parses it."""
+    ends = np.flatnonzero(np.frombuffer(data, dtype=np.uint8) == term)
+    bounds = np.r_[-1, ends, len(data)]
+    lengths = np.diff(bounds) - 1
+    longest = int(np.argmax(lengths))
+    if lengths[longest] > MAX_LINE_BYTES:
+        size = lengths[longest] / (1 << 20)
+        raise RoamstatError(f"{path} line {longest + 1} is {size:.1f} MiB long (the limit is "
+                            f"{MAX_LINE_BYTES >> 20} MiB per line); this is not a table of fixes with one fix per line: "
+                            "check the file's line endings or export it again as CSV")
+
+
+def _hide_nuls(data: bytes, term: int) -> tuple[bytes, np.ndarray, bytes]:
+    """NUL bytes replaced by a control byte absent from the file, the lines that held them, that byte."""
+    if b"\x00" not in data:
+        return data, np.array([], dtype=np.int64), b""
+    stand_in = next((bytes([c]) for c in (*range(1, 9), *range(14, 32)) if bytes([c]) not in data), None)
+    if stand_in is None:  # every control byte in use as well: binary
+        raise ValueError("no free control byte")
+    return data.replace(b"\x00", stand_in), nul_lines(data, term), stand_in
+
+
+def nul_lines(data: bytes, term: int) -> np.ndarray:
+    """The 1-based physical lines that hold NUL bytes."""
+    arr = np.frombuffer(data, dtype=np.uint8)
+    return np.unique(1 + np.searchsorted(np.flatnonzero(arr == term), np.flatnonzero(arr == 0)))
 
 
 def line_terminator(data: bytes) -> tuple[int, str]:
@@ -187,9 +251,19 @@ def read_table(raw: bytes, path: Path) -> RawTable:
     term, ending = line_terminator(data)
     if ending == "CR":
         notes.append("bare-CR line endings")
+    check_sizes(data, term, path)
+    try:
+        data, nul_at, stand_in = _hide_nuls(data, term)
+    except ValueError:
+        raise RoamstatError(f"{path} holds NUL bytes and every other control byte, so it is not a text (CSV) file; "
+                            "export it from the spreadsheet or collar software as CSV") from None
     delim = sniff_delimiter(data, encoding, term)
     scan = scan_records(data, delim, term)
     width = int(scan.field_counts.max())
+    if width > MAX_FIELDS:
+        line = int(scan.line_numbers[int(np.argmax(scan.field_counts))])
+        raise RoamstatError(f"{path} line {line} has {width} fields (the limit is {MAX_FIELDS}); check the delimiter "
+                            "and the line endings, or export the fixes again as CSV")
     frame = None
     if scan.well_formed:
         frame = _read_fast(data, delim, encoding, width, path, term)
@@ -202,7 +276,23 @@ def read_table(raw: bytes, path: Path) -> RawTable:
         line_numbers, counts = scan.line_numbers, scan.field_counts
     if scan.embedded_breaks and frame is not None:
         notes.append("quoted fields with line breaks")
-    return _split_header(frame, counts, line_numbers, encoding, delim, notes, path)
+    table = _split_header(frame, counts, line_numbers, encoding, delim, notes, path)
+    if nul_at.size:
+        _mark_nul_rows(table, nul_at, stand_in.decode("ascii"), path)
+    return table
+
+
+def _mark_nul_rows(table: RawTable, nul_lines: np.ndarray, stand_in: str, path: Path) -> None:
+    """Flag the records that held NUL bytes and put the NULs back in their values."""
+    if table.line_numbers.size == 0 or nul_lines.min() < table.line_numbers[0]:
+        raise RoamstatError(f"{path}: the header line holds a NUL byte; fix or remove it and export the file again")
+    record = np.searchsorted(table.line_numbers, nul_lines, side="right") - 1
+    table.nul_rows = np.zeros(len(table.values), dtype=bool)
+    table.nul_rows[record] = True
+    for i in np.flatnonzero(table.nul_rows):
+        table.values.iloc[i] = table.values.iloc[i].str.replace(stand_in, "\x00", regex=False)
+        table.extra_fields.iloc[i] = table.extra_fields.iloc[i].replace(stand_in, "\x00")
+    table.notes.append(f"{int(table.nul_rows.sum())} record(s) with NUL bytes rejected (nul_byte)")
 
 
 def _read_fast(data: bytes, delim: str, encoding: str, width: int, path: Path, term: int) -> pd.DataFrame | None:

@@ -175,12 +175,15 @@ def _read_file(path: str, cfg) -> _FileRead:
 READ_REASONS = {
     "field_count": "the row has a different number of fields than the header line",
     "header_repeat": "a repeated header line",
+    "nul_byte": "the row holds a NUL byte (binary data inside a text file)",
 }
 
 
 def _read_rejections(table) -> np.ndarray:
-    """Reason code per data record: 'field_count', 'header_repeat' or '' (readable)."""
+    """Reason code per data record: 'nul_byte', 'field_count', 'header_repeat' or '' (readable)."""
     codes = np.where(table.field_counts != len(table.header), "field_count", "").astype(object)
+    if table.nul_rows is not None:
+        codes[table.nul_rows] = "nul_byte"
     codes_first, uniques = pd.factorize(table.values.iloc[:, 0])
     same = [i for i, u in enumerate(uniques) if str(u).strip().lower() == table.header[0].lower()]
     header = [h.lower() for h in table.header]
@@ -194,7 +197,7 @@ def _rejected_rows(values, lines, codes, mapping, path, stem, extra) -> pd.DataF
     n = len(values)
     id_col = mapping.columns.get("animal_id")
     animal = values[id_col].str.strip().to_numpy(dtype=object) if id_col else np.full(n, stem, dtype=object)
-    reason = np.where(codes == "header_repeat", READ_REASONS["header_repeat"], READ_REASONS["field_count"])
+    reason = np.array([READ_REASONS[c] for c in codes], dtype=object)
     out = pd.DataFrame({"source_file": path, "source_row": np.asarray(lines, dtype=np.int64), "animal_id": animal,
                         "reason_code": codes, "reason": reason})
     for name in values.columns:

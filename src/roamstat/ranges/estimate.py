@@ -20,6 +20,7 @@ from typing import Callable, NamedTuple
 import numpy as np
 import pandas as pd
 from shapely import affinity
+from shapely.geometry import MultiPolygon
 
 from roamstat.config import Config
 from roamstat.ranges import geojson
@@ -295,6 +296,14 @@ def ranges_animal(fixes_a: pd.DataFrame, cfg: Config | None = None, origin: Hidd
             rows.append(_row(method, level, n=n, ratio=ratio, note=note, masked=masked))
             continue
         geom, area, low, high, h, n_used = shapes[(method, level)]
+        shown = place(geom)
+        outline = geojson.checked_lonlat(shown, inverse, lon_centre)
+        if outline is None:  # never a table area that its outline contradicts
+            note = geojson.NOT_PLANAR_NOTE.format(method=method.upper())
+            row = _row(method, level, n=n_used, bandwidth_m=h, ratio=ratio, note=note, masked=masked)
+            rows.append(row)
+            features.append(geojson.feature(MultiPolygon(), {"animal_id": animal_id, **row}))
+            continue
         notes = [caution] if caution and method == "kde" else []
         if geom.is_empty:
             notes.append("fixes are collinear or too few: the outline is empty")
@@ -309,9 +318,8 @@ def ranges_animal(fixes_a: pd.DataFrame, cfg: Config | None = None, origin: Hidd
                    n_eff if from_model else math.nan,
                    h, ratio, gain, "; ".join(notes), masked)
         rows.append(row)
-        shown = place(geom)
         contours.append({"method": method, "level": level, "geometry": shown})
-        features.append(geojson.feature(geojson.to_lonlat(shown, inverse, lon_centre), {"animal_id": animal_id, **row}))
+        features.append(geojson.feature(outline, {"animal_id": animal_id, **row}))
     note = model_note if model is not None and not model.range_resident else ""
     return rows, features, RangeExtras(contours, curve, pd.DataFrame({"x_m": track_x, "y_m": track_y}), masked, note)
 

@@ -5,9 +5,17 @@ counter-clockwise, holes clockwise) and are cut at the antimeridian
 (sec. 3.1.9).  Edges are densified in metres before they leave the planar
 frame, so a long straight MCP edge keeps its shape on the globe.
 
+An outline is written only when it is a faithful copy of the planar range:
+every vertex maps back to the globe, the result is a valid polygon, and its
+geodesic area on the WGS84 ellipsoid (Karney 2013) is within
+``AREA_AGREEMENT`` of the planar equal-area one.  A range that wraps around
+a pole, or reaches past the hemisphere the frame can show, fails that check
+(lon/lat polygons cannot enclose a pole), and :func:`checked_lonlat` says so.
+
 References
 ----------
 Butler, H. et al. (2016). The GeoJSON Format. IETF RFC 7946.
+Karney, C. F. F. (2013). Algorithms for geodesics. Journal of Geodesy 87, 43-55.
 """
 
 from __future__ import annotations
@@ -16,6 +24,7 @@ import math
 
 import numpy as np
 import shapely
+from pyproj import Geod
 from shapely.affinity import translate
 from shapely.geometry import MultiPolygon, box, mapping
 from shapely.geometry.polygon import orient
@@ -23,6 +32,37 @@ from shapely.ops import unary_union
 
 COORD_GRID_DEG = 1e-7  # about 1 cm: positions are rounded to this (RFC 7946 sec. 11.2 advises limiting precision)
 MAX_EDGE_M = 250.0  # densify edges longer than this before unprojecting (or 1/500 of the perimeter)
+AREA_AGREEMENT = 0.01  # written outline's geodesic area within 1 % of the table's (judgement, no source)
+NOT_PLANAR_NOTE = ("the fixes span too much of the globe (around a pole or across a hemisphere) for a planar "
+                   "range: no meaningful {method} outline or area; analyse the stages of the journey separately")
+_GEOD = Geod(ellps="WGS84")
+
+
+def checked_lonlat(geom_m, inverse, lon_centre: float):
+    """:func:`to_lonlat`, or None when the lon/lat outline would not be the planar range.
+
+    Parameters
+    ----------
+    geom_m, inverse, lon_centre
+        As for :func:`to_lonlat`; ``geom_m`` lies in an equal-area frame.
+
+    Returns
+    -------
+    shapely Polygon or MultiPolygon, or None
+        None when a vertex has no place on the globe, the outline is invalid
+        or empty, or its geodesic area (Karney 2013) differs from the planar
+        area by more than ``AREA_AGREEMENT``.
+    """
+    if geom_m.is_empty:
+        return MultiPolygon()
+    try:
+        geom = to_lonlat(geom_m, inverse, lon_centre)
+    except (shapely.errors.GEOSException, ValueError):
+        return None
+    if geom is None or geom.is_empty or not geom.is_valid:
+        return None
+    area_m2 = abs(_GEOD.geometry_area_perimeter(geom)[0])
+    return geom if abs(area_m2 - geom_m.area) <= AREA_AGREEMENT * geom_m.area else None
 
 
 def to_lonlat(geom_m, inverse, lon_centre: float):
@@ -41,6 +81,11 @@ def to_lonlat(geom_m, inverse, lon_centre: float):
     Returns
     -------
     shapely Polygon or MultiPolygon in degrees, right-hand wound.
+
+    Raises
+    ------
+    ValueError
+        When a vertex lies outside the frame's image of the globe.
     """
     if geom_m.is_empty:
         return MultiPolygon()
@@ -49,6 +94,8 @@ def to_lonlat(geom_m, inverse, lon_centre: float):
 
     def _inverse(xy):
         lon, lat = inverse(xy[:, 0], xy[:, 1])
+        if not (np.isfinite(lon).all() and np.isfinite(lat).all()):
+            raise ValueError("outline reaches past the globe in this frame")
         lon = lon_centre + (np.asarray(lon) - lon_centre + 180.0) % 360.0 - 180.0
         return np.column_stack([lon, lat])
 

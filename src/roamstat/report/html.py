@@ -16,6 +16,8 @@ from datetime import date, datetime
 import numpy as np
 import pandas as pd
 
+from roamstat.shown import shown
+
 ID_SHOWN_CHARS = 120  # longer ids are shortened in headings and tables, shown in full on demand
 
 CSP = "default-src 'none'; img-src 'self' data:; style-src 'unsafe-inline'"
@@ -64,8 +66,8 @@ _VERDICT_CLASS = {"farther": "v-farther", "closer": "v-closer", "consistent": "v
 
 
 def esc(value) -> str:
-    """HTML-escape any value's text (quotes included, safe inside attributes)."""
-    return html.escape(str(value), quote=True)
+    """HTML-escape any value's text (quotes included, safe inside attributes), control and bidi characters shown as escapes."""
+    return html.escape(shown(value), quote=True)
 
 
 def is_missing(value) -> bool:
