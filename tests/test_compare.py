@@ -53,7 +53,7 @@ def test_erl_p_value_lies_in_the_extreme_rank_interval():
     # Myllymäki et al. (2017): the ERL ordering refines the extreme-rank ordering, so its p-value lies between
     # the liberal and conservative p-values of the basic extreme-rank test (from memory of their §4).
     rng = np.random.default_rng(5)
-    for trial in range(30):
+    for _ in range(30):
         curves = np.round(rng.normal(size=(20, 6)), 1)  # rounding makes ties common
         curves[0] += rng.normal(0, 1.5)
         obs, sims = curves[0], curves[1:]

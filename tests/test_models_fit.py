@@ -28,7 +28,8 @@ def animal(n=500, seed=0, steps=None, turns=None):
     return pd.DataFrame({"step_m": steps, "turn_rad": turns, "segment": 0})
 
 
-def quiet_fit(steps_a, cfg=Config(), seed=0):
+def quiet_fit(steps_a, cfg=None, seed=0):
+    cfg = Config() if cfg is None else cfg
     with warnings.catch_warnings():
         warnings.simplefilter("error")  # no warnings spam from scipy
         return fit_animal(steps_a, cfg, np.random.default_rng(seed))

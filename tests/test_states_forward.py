@@ -92,7 +92,7 @@ def test_gradient_matches_numerical_differences():
             theta = rng.normal(0.0, 0.5, layout.size)
             theta[k:2 * k] = np.log(rng.uniform(50.0, 300.0, k))
             ll, grad = obs.loglik_and_gradient(layout, theta)
-            numeric = optimize.approx_fprime(theta, lambda v: obs.loglik(layout.unpack(v)), 1e-7)
+            numeric = optimize.approx_fprime(theta, lambda v, layout=layout: obs.loglik(layout.unpack(v)), 1e-7)
             np.testing.assert_allclose(grad, numeric, rtol=1e-4, atol=1e-4)
 
 

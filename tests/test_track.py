@@ -435,7 +435,7 @@ def test_real_antarctic_tracks_steps_match_geographiclib():
     steps = compute_steps(fixes)
     assert len(projections) == 3 and len(steps) > 100
     sample = steps.sample(60, random_state=1)
-    for idx, row in sample.iterrows():
+    for _, row in sample.iterrows():
         a = fixes[(fixes.animal_id == row.animal_id) & (fixes.time == row.t_start)].iloc[0]
         b = fixes[(fixes.animal_id == row.animal_id) & (fixes.time == row.t_end)].iloc[0]
         ref = Geodesic.WGS84.Inverse(a.lat, a.lon, b.lat, b.lon)

@@ -30,6 +30,7 @@ def inspect_text(paths, cfg: Config) -> str:
     if len(loaded.rejected):
         for code, count in loaded.rejected["reason_code"].value_counts().sort_index().items():
             lines.append(f"    {code}: {count}")
+    assert loaded.summary is not None, "load() with steps builds the summary"
     summary = loaded.summary.set_index("animal_id")
     for aid, crs in loaded.projections.items():
         row = summary.loc[aid] if aid in summary.index else None

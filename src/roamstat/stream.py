@@ -77,7 +77,7 @@ class _Spill:
         self.read_rejected: list[pd.DataFrame] = []
         self.files: list[dict] = []
         self.n_read = 0
-        self.input_crs = None
+        self.input_crs: str | None = None
         self.tz_notes: set[str] = set()
         self.position_sum = np.zeros(3)  # unit vectors of the positions read, for the hidden origin
 
@@ -106,6 +106,7 @@ def _spill(paths, cfg: Config, scratch: SpillFile, chunk_records: int) -> _Spill
             if part.tz_note:
                 spill.tz_notes.add(part.tz_note)
             file_info = _merge_info(file_info, part.files[0])
+        assert file_info is not None, "read_in_chunks yields at least one part per file"
         spill.files.append(file_info)
     if spill.n_read == 0 or not spill.parts:
         raise RoamstatError(f"{', '.join(map(str, paths))}: no data row could be read; check with 'roamstat inspect'")

@@ -85,8 +85,8 @@ def decode_plan(data: bytes, path: Path) -> tuple[bytes, str, list[str]]:
         if data.startswith(bom):
             return _from_utf16(data[len(bom):], name, path, "byte-order mark")
     if b"\x00" in data:
-        if name := _utf16_by_zeros(data):
-            return _from_utf16(data, name, path, "no byte-order mark, recognised by its zero bytes")
+        if guessed := _utf16_by_zeros(data):
+            return _from_utf16(data, guessed, path, "no byte-order mark, recognised by its zero bytes")
         term, _ending = line_terminator(data)
         with_nul, n_lines = nul_lines(data, term).size, data.count(bytes([term])) + 1
         if with_nul > BINARY_NUL_LINES * n_lines:
@@ -206,7 +206,7 @@ def scan_records(data: bytes, delim: str, term: int) -> _Scan:
         delims = delims[(np.searchsorted(quotes, delims) & 1) == 0]
     else:
         ends = breaks
-    starts = np.r_[0, ends + 1]
+    starts: np.ndarray = np.r_[0, ends + 1]
     ends = np.r_[ends, arr.size]
     if starts.size and starts[-1] >= arr.size:  # file ends with a line break
         starts, ends = starts[:-1], ends[:-1]

@@ -30,6 +30,7 @@ from __future__ import annotations
 import hashlib
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -127,7 +128,7 @@ def _concat(frames: list[pd.DataFrame]) -> pd.DataFrame:
 def _read_file(path: str, cfg) -> _FileRead:
     p = Path(path)
     raw = load_bytes(p)
-    info = {"path": path, "size_bytes": len(raw), "sha256": hashlib.sha256(raw).hexdigest()}
+    info: dict[str, Any] = {"path": path, "size_bytes": len(raw), "sha256": hashlib.sha256(raw).hexdigest()}
     if looks_like_gpx(p, raw):
         gpx = read_gpx(raw, p)
         values, lines = gpx.values, gpx.line_numbers
@@ -233,6 +234,7 @@ def _standardise(values, lines, mapping: Mapping, path, stem, cfg, delimiter, no
         notes.append(f"date and time of day are separate columns: paired {mapping.date_col!r} with {cols['time']!r}")
     where = f"{path}, column {mapping.describe()['time']!r}"
     time_format = getattr(cfg, "time_format", None)
+    assert time_text is not None, "detect() and the GPX reader always map a time or date column"
     times, tz_note, read_as = parse_times(time_text, cfg.tz, where, mapping.date_col or cols.get("time", ""),
                                               time_format)
     notes.append(f"times read as {read_as.description}")

@@ -170,8 +170,10 @@ def _day_or_month(text: pd.Series, where: str, day_pattern: str, month_pattern: 
 
 
 def _reading(value: str, order: str) -> str:
-    a, b, year = re.match(r"^(\d{1,2})[/.\-](\d{1,2})[/.\-](\d{2,4})", value).groups()
+    found = re.match(r"^(\d{1,2})[/.\-](\d{1,2})[/.\-](\d{2,4})?", value)
+    assert found is not None, "callers pass only values matching _LEAD"
+    a, b, year = found.groups()
     day, month = (int(a), int(b)) if order == "day" else (int(b), int(a))
     months = ["January", "February", "March", "April", "May", "June", "July", "August", "September", "October",
               "November", "December"]
-    return f"{day} {months[month - 1]} {year}"
+    return f"{day} {months[month - 1]} {year}" if year else f"{day} {months[month - 1]}"

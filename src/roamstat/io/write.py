@@ -20,6 +20,7 @@ import os
 import re
 import tempfile
 from pathlib import Path
+from typing import Literal
 
 import numpy as np
 import pandas as pd
@@ -35,11 +36,10 @@ def atomic_write(path: str | os.PathLike, data: str | bytes) -> Path:
     """Write ``data`` to ``path`` through a temporary file and a rename."""
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    mode = "wb" if isinstance(data, bytes) else "w"
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
     try:
-        with os.fdopen(fd, mode, **({} if mode == "wb" else {"encoding": "utf-8", "newline": ""})) as fh:
-            fh.write(data)
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data if isinstance(data, bytes) else data.encode("utf-8"))
         os.chmod(tmp, 0o666 & ~_UMASK)  # mkstemp makes 0600; outputs are meant to be shared
         os.replace(tmp, path)
     except BaseException:
@@ -93,7 +93,7 @@ def format_times(table: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
-def _time_unit(values: np.ndarray) -> str:
+def _time_unit(values: np.ndarray) -> Literal["s", "ms", "us"]:
     finite = values[~np.isnat(values)].astype("datetime64[us]").astype(np.int64)
     if finite.size == 0 or not (finite % 1_000_000).any():
         return "s"

@@ -57,7 +57,8 @@ def bootstrap_ci(model: FittedModel, replicates: int, rng: np.random.Generator) 
     keys = [k for k in sorted(model.params) if k not in model.fixed_keys and k not in endpoint]
     if not keys:
         return endpoint, 0
-    draws, failed = [], 0
+    rows: list[list[float]] = []
+    failed = 0
     with warnings.catch_warnings(), np.errstate(all="ignore"):
         warnings.simplefilter("ignore", RuntimeWarning)
         for _ in range(replicates):
@@ -68,10 +69,10 @@ def bootstrap_ci(model: FittedModel, replicates: int, rng: np.random.Generator) 
             if refit is None:
                 failed += 1
                 continue
-            draws.append([refit.params[k] for k in keys])
-    if not draws:
+            rows.append([refit.params[k] for k in keys])
+    if not rows:
         return endpoint, failed
-    draws = np.asarray(draws)
+    draws = np.asarray(rows)
     for j, key in enumerate(keys):
         if key in model.circular_keys:
             # measure angles from the estimate so an interval across +-pi stays one interval

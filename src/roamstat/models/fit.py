@@ -213,9 +213,11 @@ def fit_animal(steps_a: pd.DataFrame, cfg, rng: np.random.Generator) -> AnimalFi
     models = {(c.comparison, c.name): c.model for c in candidates if c.model is not None}
     best = {comparison: models[(comparison, model)]  # plain zip: itertuples builds a class per call
             for comparison, model, is_best in zip(rows["comparison"], rows["model"], rows["best"]) if is_best}
-    tail = _better(models.get(("tail", "power_law")), models.get(("tail", "truncated_power_law")))
+    tail = _better(_step(models.get(("tail", "power_law"))), _step(models.get(("tail", "truncated_power_law"))))
     reason = _tail_unsupported_reason(rows, tail, next((n[6:] for n in notes if n.startswith(("step: ", "tail: "))), ""))
-    return AnimalFits(rows=rows, best_step=best.get("full"), best_turn=best.get("turn"), tail=tail,
+    best_turn = best.get("turn")
+    assert best_turn is None or isinstance(best_turn, TurnModel)
+    return AnimalFits(rows=rows, best_step=_step(best.get("full")), best_turn=best_turn, tail=tail,
                       step_values=steps, turn_values=turns, n_excluded_steps=n_excl,
                       note="; ".join(notes), tail_supported=not reason, tail_reason=reason, models=models)
 
@@ -390,6 +392,12 @@ def _ci_text(c: _Candidate, replicates: int, rng: np.random.Generator) -> str:
         return ci_json({})
     ci, _ = bootstrap_ci(c.model, replicates, rng)
     return ci_json(ci)
+
+
+def _step(model: FittedModel | None) -> StepModel | None:
+    """A ``full`` or ``tail`` comparison's model, typed as the step model it always is."""
+    assert model is None or isinstance(model, StepModel)
+    return model
 
 
 def _better(a: StepModel | None, b: StepModel | None) -> StepModel | None:

@@ -295,7 +295,7 @@ def fit_truncated_power_law(x: np.ndarray, xmin: float, xmax: float | None = Non
     """
     x = np.asarray(x, dtype=float)
     fitted = xmax is None
-    upper = float(np.max(x)) if fitted else float(xmax)
+    upper = float(np.max(x)) if xmax is None else float(xmax)
     tail = x[(x >= xmin) & (x <= upper)]
     if tail.size < 2 or upper <= xmin:
         return None

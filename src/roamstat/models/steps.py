@@ -48,7 +48,7 @@ class StepFamily:
 
     name: str
     keys: tuple[str, ...]
-    dist: object  # the scipy.stats distribution
+    dist: stats.rv_continuous  # the scipy.stats distribution
     args: Callable[[dict], tuple]  # params -> (shape arguments, scale); scipy's freezing is slow
     fit_full: Callable[[np.ndarray], dict]  # MLE on x > 0, location 0
     fit_tail: Callable[[np.ndarray, float], dict] | None  # MLE left-truncated at xmin (tail families only)
@@ -238,7 +238,11 @@ def fit_step_family(name: str, x: np.ndarray, xmin: float = 0.0) -> ScipyStepMod
     with warnings.catch_warnings(), np.errstate(all="ignore"):
         # scipy's optimisers warn on flat or extreme likelihoods; the result is checked below
         warnings.simplefilter("ignore", RuntimeWarning)
-        params = family.fit_full(x) if xmin <= 0 else family.fit_tail(x, xmin)
+        if xmin <= 0:
+            params = family.fit_full(x)
+        else:
+            assert family.fit_tail is not None, "only TAIL_REFIT families are fitted above xmin"
+            params = family.fit_tail(x, xmin)
         model = ScipyStepModel(family, params, x.size, 0.0, xmin)
         model.loglik = float(np.sum(model.logpdf(x)))
     if not (np.isfinite(model.loglik) and all(np.isfinite(v) for v in params.values())):

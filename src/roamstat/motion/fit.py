@@ -181,7 +181,7 @@ def fit_model(name: str, track: Track, error: LocationError) -> MotionFit:
     params.update(p)
     if name in RANGE_RESIDENT:
         params["diffusion_m2_s"] = p["sigma_m"] ** 2 / p["tau_position_s"]
-    if not estimate_error:
+    if track.error_var is not None:  # known errors: report their typical size
         params["error_sd_m"] = float(np.median(np.sqrt(track.error_var)))
     se = _delta_se(name, params, free, cov_log)
     for key in at_edge:

@@ -25,6 +25,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import cast
 
 import contourpy
 import numpy as np
@@ -144,7 +145,8 @@ def isopleth(grid: DensityGrid, level: float):
     threshold = hdr_threshold(grid, level)
     generator = contourpy.contour_generator(grid.gx, grid.gy, grid.density, name="serial",
                                             fill_type=contourpy.FillType.OuterOffset)
-    points_list, offsets_list = generator.filled(threshold, np.inf)
+    # OuterOffset fills return (points, offsets); contourpy's stubs type every fill type's 3-tuple union
+    points_list, offsets_list = cast(tuple[list[np.ndarray], list[np.ndarray]], generator.filled(threshold, np.inf))
     polygons = []
     for points, offsets in zip(points_list, offsets_list):
         rings = [points[offsets[i]:offsets[i + 1]] for i in range(len(offsets) - 1)]

@@ -126,9 +126,9 @@ def _starts_and_bounds(model: str, t, y, dt_days):
                   for a in (0.1, 0.25, 0.4) for u in (0.2, 0.5, 0.8) for g in (0.01, 0.04)]
     elif model == "mixed_migrant":
         # As the migrant, plus r = d2 / d1 in [0, 1]: the share of the way back.
-        starts, (lo, hi) = _starts_and_bounds("migrant", t, y, dt_days)
-        starts = [np.append(s, r) for s in starts for r in (0.3, 0.7)]
-        lo, hi = np.append(lo, 0.0), np.append(hi, 1.0)
+        migrant_starts, (migrant_lo, migrant_hi) = _starts_and_bounds("migrant", t, y, dt_days)
+        starts = [[*s, r] for s in migrant_starts for r in (0.3, 0.7)]
+        lo, hi = [*migrant_lo, 0.0], [*migrant_hi, 1.0]
     else:
         raise ValueError(model)
     starts = [np.clip(np.asarray(s, float), np.asarray(lo) + 1e-12, np.asarray(hi) - 1e-12) for s in starts]
@@ -284,14 +284,15 @@ def choose_pattern(aics: dict, fits: dict, t, x, y):
     delta : float
         Runner-up AIC minus the chosen one's (NaN with one candidate).
     """
-    notes, eligible = [], dict(aics)
+    notes: list[str] = []
+    eligible = dict(aics)
     for model in TWO_RANGE:
         if model in fits:
             apart, why = ranges_apart(model, fits[model], t, x, y)
             if not apart:
                 del eligible[model]
                 notes.append(f"{model} set aside: {why}")
-    ranked = sorted(eligible, key=eligible.get)
+    ranked = sorted(eligible, key=lambda m: eligible[m])
     chosen, delta = ranked[0], math.nan
     reason = f"{chosen}: lowest AIC of the NSD curves"
     if len(ranked) > 1:
@@ -396,7 +397,7 @@ def _iso(t0: pd.Timestamp, days: float) -> str:
 
 def describe_params(model: str, p, t0: pd.Timestamp, span_days: float):
     """Plain, unit-named parameters of the chosen curve, and notes about them."""
-    notes = []
+    notes: list[str] = []
     if model == "sedentary":
         return {"nsd_km2": float(p[0])}, notes
     if model == "nomad":
@@ -475,13 +476,13 @@ def finalise_residency(residency: pd.DataFrame, null_tests: pd.DataFrame | None 
     n_eff = _n_effective(ranges)
     explained = ids.map(verdicts).eq("consistent") & out["pattern"].isin(TWO_RANGE)
     explained &= ids.map(best or {}).notna() & ~ids.map(best or {}).isin(sorted(RANGE_RESIDENT))
-    for i in np.flatnonzero(explained.to_numpy()):
+    for i in np.flatnonzero(explained.to_numpy()).tolist():
         old = out["pattern"].iat[i]
         out.iat[i, out.columns.get_loc("pattern")] = "nomad"
         out.iat[i, out.columns.get_loc("pattern_reason")] = (
             f"nomad: the NSD curve suggested {old}, but the net displacement is consistent with the {null_name} "
             f"random-walk null and the best motion model ({best[ids.iat[i]]}) has no home range")
-    failed = [[] for _ in range(len(out))]
+    failed: list[list[str]] = [[] for _ in range(len(out))]
     for i, (animal, pattern) in enumerate(zip(ids, out["pattern"].astype(str))):
         if pattern not in ("resident", "sedentary"):
             failed[i].append(f"pattern is {pattern}, not resident or sedentary")

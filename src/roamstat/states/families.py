@@ -45,7 +45,7 @@ class TurnFamily:
 
     name: str
     keys: tuple[str, str]  # (mean direction, concentration)
-    dist: object
+    dist: stats.rv_continuous
     centre: Callable[[np.ndarray], np.ndarray]  # theta - mu -> the distribution's own argument
     to_free: Callable[[np.ndarray], np.ndarray]  # concentration -> unconstrained
     from_free: Callable[[np.ndarray], np.ndarray]

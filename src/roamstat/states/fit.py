@@ -142,9 +142,9 @@ def fit_hmm(obs: Observations, n_states: int, step_family: str, turn_family: str
     values = np.array([r.fun for r in results])
     best = results[int(np.argmin(values))]
     params = layout.unpack(np.clip(best.x, lo, hi))
-    means = [step_model(step_family, a, b).mean() for a, b in zip(params.shape, params.scale)]
+    means = np.array([step_model(step_family, a, b).mean() for a, b in zip(params.shape, params.scale)])
     if params.zero is not None:
-        means = np.asarray(means) * (1.0 - params.zero)
+        means = means * (1.0 - params.zero)
     params = params.permuted(np.argsort(means, kind="stable"))
     return HmmFit(params, -float(best.fun), obs.n_obs, n_starts,
                   int(np.count_nonzero(values <= values.min() + BEST_TOLERANCE)), bool(best.success))
