@@ -117,12 +117,12 @@ def test_preferred_area_is_the_autocorrelated_kde_when_present(tmp_path):
 
 def test_optional_tables_add_columns(tmp_path):
     motion = pd.DataFrame({"animal_id": ["ELK-01", "ELK-01"], "model": ["ou", "ctcrw"], "best": [False, True]})
-    states = pd.DataFrame({"animal_id": ["ELK-01", "ELK-01"], "state": [1, 2], "stationary_probability": [0.62, 0.38],
+    states = pd.DataFrame({"animal_id": ["ELK-01", "ELK-01"], "state": [1, 2], "stationary_p": [0.62, 0.38],
                            "best": [True, True]})
     plain = text_of(small_report(tmp_path / "plain"))
     text = text_of(small_report(tmp_path / "extra", motion_models=motion, state_models=states))
     assert "movement model" not in plain and "time in state" not in plain
-    assert "movement model" in text and "ctcrw" in text and "state 1 62 %, state 2 38 %" in text
+    assert "movement model" in text and "ctcrw" in text and "1: 62 % · 2: 38 %" in text
 
 
 def test_a_new_section_builder_appears_without_layout_changes(tmp_path, monkeypatch):

@@ -29,8 +29,8 @@ from roamstat.io.write import atomic_write
 from roamstat.report import human
 from roamstat.report.html import esc, key_values, page, search_script, short_id, table
 from roamstat.report.overview import (OPTIONAL_COLUMNS, animal_ids, disagreement, motion_best, null_models,
-                                      preferred_areas, quality_table, ratio_text, reference_null, sentence,
-                                      time_in_state)
+                                      preferred_areas, quality_table, ratio_text, reference_null, sentence)
+from roamstat.report.states_figures import time_in_state
 from roamstat.report.sections import (SECTIONS, AnimalJob, AnimalView, area_text, candidate_text,
                                       render_animal, residency_text)
 from roamstat.report.slug import safe_name, safe_names

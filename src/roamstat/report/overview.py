@@ -44,7 +44,7 @@ def quality_table(rejected: pd.DataFrame | None) -> pd.DataFrame:
 # --- the decision-first overview ----------------------------------------------
 
 #: Optional per-animal columns read when a stage wrote their table: (table, column, label).
-OPTIONAL_COLUMNS = [("motion_models", "model", "movement model"), ("state_models", "stationary_probability",
+OPTIONAL_COLUMNS = [("motion_models", "model", "movement model"), ("state_models", "stationary_p",
                                                                      "time in state")]
 
 
@@ -74,19 +74,6 @@ def motion_best(models: pd.DataFrame | None) -> dict:
         return {}
     best = models[models["best"].astype(str).str.lower().isin(["true", "1"])]
     return dict(zip(best["animal_id"].astype(str), best["model"].astype(str)))
-
-
-def time_in_state(states: pd.DataFrame | None) -> dict:
-    """"state 1 62 %, state 2 38 %" per animal, from the best model's stationary probabilities."""
-    states = _rows_for(states)
-    if not {"state", "stationary_probability"} <= set(states.columns):
-        return {}
-    if "best" in states.columns:
-        states = states[states["best"].astype(str).str.lower().isin(["true", "1"])]
-    out = {}
-    for aid, rows in states.groupby(states["animal_id"].astype(str)):
-        out[aid] = ", ".join(f"state {s} {100 * float(p):.0f} %" for s, p in zip(rows["state"], rows["stationary_probability"]))
-    return out
 
 
 def ratio_text(observed_m, median_m) -> str:

@@ -285,7 +285,7 @@ def candidate_text(row, tests: pd.DataFrame) -> str:
     value = row.get("range_study_candidate")
     if human.missing(value):
         return "–"
-    for column in ("range_study_reason", "candidate_reason"):
+    for column in ("range_study_note", "range_study_reason", "candidate_reason"):
         if isinstance(row.get(column), str) and row[column]:
             return ("yes: " if bool(value) else "no: ") + row[column]
     pattern = residency_text(row)
