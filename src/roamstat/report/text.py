@@ -144,7 +144,7 @@ def legend_html(nulls, optional=()) -> str:
          "home-range study; the reason follows."),
         ("preferred area", "the 95 % kernel home range to cite: the autocorrelation-aware estimate when it was "
          "computed, else the reference-bandwidth KDE (Worton 1989), with its interval when given; "
-         "<em>insufficient</em> below the fixes a kernel estimate needs; <em>none</em> when the best movement "
+         "<em>insufficient</em> below the fixes a kernel estimate needs; <em>none</em> when the best continuous-time "
          "model is not range-resident (no stationary home range to cite)."),
     ]
     if "movement model" in optional:
