@@ -52,14 +52,22 @@ def deployment(kind, scenario, nulls, n, seed, class_table, scale=1.0):
     return compare.finalise(pd.concat(parts, ignore_index=True), cfg)
 
 
-def assert_calibrated(rows: pd.DataFrame, n: int):
+def assert_calibrated(rows: pd.DataFrame, n: int, conservative: bool = False):
+    """Rejection counts inside the two-sided 99 % binomial band around alpha.
+
+    ``conservative``: only the upper edge, for the one case the docs call conservative rather than
+    exact (docs/nulls.md); the power tests below keep a never-rejecting null from passing there.
+    """
     tested = rows[rows["p_value"].notna()]
     assert len(tested) >= 0.95 * n, rows["note"].value_counts().head()
     band = stats.binom.interval(0.99, len(tested), ALPHA)
     n_p = int((tested["p_value"] <= ALPHA).sum())
     n_curve = int((tested["p_curve"] <= ALPHA).sum())
-    assert band[0] <= n_p <= band[1], (n_p, band)
-    assert band[0] <= n_curve <= band[1], (n_curve, band)
+    low = 0 if conservative else band[0]
+    assert low <= n_p <= band[1], (n_p, band)
+    assert low <= n_curve <= band[1], (n_curve, band)
+    if conservative:
+        return
     # false positives on both sides: a biased null puts them all on one (fair coin, 99 % band)
     hit = tested[tested["p_value"] <= ALPHA]
     farther = int((hit["observed_net_m"] > hit["null_median_m"]).sum())
@@ -76,8 +84,10 @@ def assert_calibrated(rows: pd.DataFrame, n: int):
 def test_ctcrw_null_holds_its_level_under_error_gaps_and_irregular_times(kind, scenario, class_table):
     # not offered as valid: discrete-CRW animals (straight hourly legs) with gaps and only 5 m error, where
     # the continuous-time model misses the legs' shape and p_curve rejects 10-15 % (docs/nulls.md)
+    # discrete-CRW animals at irregular times: the fitted continuous model is conservative there
+    # (0.7-3 % measured; docs/nulls.md), so only the upper edge is a claim
     table = deployment(kind, scenario, ("ctcrw",), N_ANIMALS, 1300 + ord(scenario) + 10 * len(kind), class_table)
-    assert_calibrated(table, N_ANIMALS)
+    assert_calibrated(table, N_ANIMALS, conservative=(kind, scenario) == ("crw", "c"))
     assert table["note"].str.contains({"a": "dop_uere", "b": "dop_uere", "c": "quality_class"}[scenario]).all()
 
 

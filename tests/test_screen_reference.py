@@ -11,7 +11,7 @@ import pandas as pd
 import pytest
 from geographiclib.geodesic import Geodesic
 
-from roamstat.config import Config
+from roamstat.config import Config, check_config
 from roamstat.errors import RoamstatError
 from roamstat.io.read import read_inputs
 from roamstat.screen import screen
@@ -61,11 +61,10 @@ def test_too_fast_matches_a_sequential_reference_walk(tmp_path, seed):
 
 
 @pytest.mark.parametrize("code", ["bad_time", "bad_coords", "lat_range"])
-def test_validity_rules_cannot_be_switched_off(tmp_path, code):
-    path = tmp_path / "ok.csv"
-    path.write_text("animal_id,timestamp,lat,lon\na,2024-05-01T00:00:00Z,61,10\n")
+def test_validity_rules_cannot_be_switched_off(code):
+    # refused at the door (config.check_config), before any file is read
     with pytest.raises(RoamstatError, match=code):
-        screened(path, disabled_rules=(code,))
+        check_config(Config(disabled_rules=(code,)))
 
 
 def test_lon_range_switched_off_wraps_0_360_longitudes(tmp_path):

@@ -48,7 +48,7 @@ FIGURE_ERRORS = (ValueError, TypeError, IndexError, KeyError, OverflowError, Zer
 class Fragment:
     """A builder's output: HTML (already escaped) and figures ``(kind, caption, draw)``.
 
-    ``draw`` is a function of no arguments returning PNG bytes; it is called
+    ``draw`` is a function of no arguments returning PNG bytes (or None: nothing to draw); it is called
     by :func:`render_animal`, and an error costs that figure only.
     """
 
@@ -344,6 +344,8 @@ def render_animal(job: AnimalJob) -> str:
             except FIGURE_ERRORS as error:
                 # Odd data must cost one figure, not the report; the reason is shown in its place.
                 shown.append(f'<p class="note">{esc(caption)} Figure not drawn ({type(error).__name__}: {esc(error)})</p>')
+                continue
+            if png is None:  # the builder found nothing to draw (e.g. too few lags for a semi-variogram)
                 continue
             name = f"{job.name}-{kind}.png"
             atomic_write(job.figures_dir / name, png)
