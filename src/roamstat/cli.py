@@ -153,7 +153,8 @@ def _options_of(parser: argparse.ArgumentParser) -> list[str]:
 
 def _unknown_option_error(parser: argparse.ArgumentParser, command: str, extras: list[str]) -> None:
     """Answer arguments a command does not take with that command's usage and the nearest option."""
-    commands = parser._subparsers._group_actions[0].choices  # the subparsers, by command name
+    # the subparsers action maps each command name to its parser
+    commands = next(a for a in parser._actions if isinstance(a, argparse._SubParsersAction)).choices
     cmd = commands[command]
     hints = []
     for word in (e.split("=")[0] for e in extras if e.startswith("-")):

@@ -38,6 +38,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 from functools import partial
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -310,7 +311,7 @@ def test_animal(fixes_a: pd.DataFrame, steps_a: pd.DataFrame, fits, nominal_dt_s
         else:
             obs, why = _observed(discrete, n_obs_steps, nominal_dt_s, cfg)
             make = partial(build_null, name, fits, short)
-        row = {c: math.nan for c in ROW_COLUMNS}
+        row: dict[str, Any] = {c: math.nan for c in ROW_COLUMNS}
         row.update(null_model=name, n_steps=obs.get("n_steps", 0), observed_net_m=obs.get("net_m", math.nan),
                    note=obs.get("note", ""))
         null = None
@@ -328,9 +329,6 @@ def test_animal(fixes_a: pd.DataFrame, steps_a: pd.DataFrame, fits, nominal_dt_s
             row["note"] = _join(getattr(null, "note", ""), row["note"])
         rows.append(row)
     return pd.DataFrame(rows, columns=ROW_COLUMNS), curves
-
-
-test_animal.__test__ = False  # a pipeline function, not a pytest test
 
 
 def _observed(fixes_a, n_obs_steps, nominal_dt_s, cfg) -> tuple[dict, str]:

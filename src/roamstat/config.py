@@ -152,8 +152,9 @@ def _fail(option: str, value, what: str) -> None:
 def _number(value, option: str, low: float, low_ok: bool, high: float = math.inf, high_ok: bool = False,
             whole: bool = False, hint: str = "") -> None:
     kind = numbers.Integral if whole else numbers.Real
+    # typeshed's numbers.Real declares no >= / > and float's comparisons reject Real, so mypy refuses a valid compare
     if isinstance(value, bool) or not isinstance(value, kind) or not (
-            (value >= low if low_ok else value > low) and (value <= high if high_ok else value < high)):
+            (value >= low if low_ok else value > low) and (value <= high if high_ok else value < high)):  # type: ignore[operator]
         _fail(option, value, hint)
 
 

@@ -239,6 +239,8 @@ def _with_id(table: pd.DataFrame, animal_id: str) -> pd.DataFrame:
 
 def animal_tasks(loaded: Loaded, stages: tuple, cfg: Config) -> list[AnimalTask]:
     """One task per animal, in sorted id order (the order of every output table)."""
+    # every command with a per-animal stage runs the steps stage first, which fills both
+    assert loaded.summary is not None and loaded.steps is not None
     nominal = loaded.summary.set_index("animal_id")["nominal_dt_s"]
     steps_by = dict(tuple(loaded.steps.groupby("animal_id", sort=True)))
     tasks = []

@@ -132,6 +132,7 @@ class WrappedCauchyTurns(TurnModel):
 
     name = "wrapped_cauchy"
     k = 2
+    at_bound = False  # set by fit_wrapped_cauchy when rho stopped at RHO_MAX
 
     def __init__(self, mu: float, rho: float, n: int, loglik: float):
         self.params = plain_params(mu=wrap_angle(mu), rho=rho)

@@ -106,6 +106,7 @@ def smoothed_track(motion: AnimalMotion, animal_id: str, predict_s: float | None
     fit = motion.best
     if fit is None:
         return pd.DataFrame(columns=list(SMOOTHED_COLUMNS))
+    assert motion.time0 is not None  # a fitted model implies fixes, so a first fix time
     grid = None
     if predict_s:
         if motion.t_s[-1] / predict_s > MAX_PREDICT_POINTS:

@@ -51,4 +51,4 @@ def build_null(name: str, fits, short: ShortSteps = NO_SHORT_STEPS) -> Walk:
 
 
 __all__ = ["CrwNull", "CtcrwNull", "LevyNull", "NO_SHORT_STEPS", "NullUnavailable", "ShortSteps", "ShuffleNull",
-           "Walk", "build_null", "expected_nsd", "expected_nsd_symmetric", "short_steps", "simulate_nsd"]
+           "StatesNull", "Walk", "build_null", "expected_nsd", "expected_nsd_symmetric", "short_steps", "simulate_nsd"]

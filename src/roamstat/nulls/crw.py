@@ -40,8 +40,8 @@ class CrwNull(Walk):
 
     def __init__(self, fits, short: ShortSteps = NO_SHORT_STEPS):
         step, turn = getattr(fits, "best_step", None), getattr(fits, "best_turn", None)
-        missing = [what for what, model in (("step-length", step), ("turning-angle", turn)) if model is None]
-        if missing:
+        if step is None or turn is None:
+            missing = [what for what, model in (("step-length", step), ("turning-angle", turn)) if model is None]
             why = getattr(fits, "note", "") or "too few observations"
             raise NullUnavailable(f"no fitted {' or '.join(missing)} model ({why})")
         super().__init__(short.wrap(step.sample), turn.sample)

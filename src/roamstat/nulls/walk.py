@@ -105,11 +105,14 @@ class Walk:
     """
 
     def __init__(self, step_source: Source, turn_source: Source):
-        self.step_source = step_source
-        self.turn_source = turn_source
+        # None only in subclasses that draw steps and turns jointly and override simulate()
+        self.step_source: Source | None = step_source
+        self.turn_source: Source | None = turn_source
 
     def simulate(self, n_steps: int, n_reps: int, rng: np.random.Generator, eval_idx) -> np.ndarray:
         """Squared displacement (m^2), shape (n_reps, len(eval_idx)); see :func:`simulate_nsd`."""
+        # set by __init__; subclasses that clear them override this method
+        assert self.step_source is not None and self.turn_source is not None
         return simulate_nsd(self.step_source, self.turn_source, n_steps, n_reps, rng, eval_idx)
 
 

@@ -98,14 +98,16 @@ def model_ranges(t_s, x, y, model: RangeModel, centre_xy) -> dict:
     Fleming, C. H. et al. (2019). Methods Ecol. Evol. 10, 1679-1689.
     """
     x, y = np.asarray(x, float), np.asarray(y, float)
-    n_eff = n_effective(t_s, model.acf)
-    w = centre_variance_factor(t_s, model.acf)
-    h_rel = autocorrelated_bandwidth(t_s, model.acf)
+    acf = model.acf
+    assert acf is not None  # a range-resident model always carries its position autocorrelation
+    n_eff = n_effective(t_s, acf)
+    w = centre_variance_factor(t_s, acf)
+    h_rel = autocorrelated_bandwidth(t_s, acf)
     h_m = h_rel * model.sigma_m
     grid = density_grid(x, y, h_m)
     scale = math.sqrt(kde_area_factor(h_rel, w))
     origin = (float(x.mean()), float(y.mean()))
-    out = {"n_effective": n_eff}
+    out: dict = {"n_effective": n_eff}
     for level in (95, 50):
         shape = affinity.scale(isopleth(grid, level / 100.0), scale, scale, origin=origin)
         area = shape.area / 1e6

@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
+from typing import Any
 
 import pandas as pd
 
@@ -172,12 +173,13 @@ def _overview_rows(tables: dict, ids: list[str], nulls: list[str]) -> dict:
         verdicts = {n: str(by_null[n][aid].get("verdict", "–")) for n in nulls if aid in by_null[n]}
         medians = {n: _num(by_null[n][aid].get("null_median_m")) for n in nulls if aid in by_null[n]}
         test = by_null.get(ref, {}).get(aid) if ref else None
-        facts = {"species": None if s is None else s.get("species"), "test": test, "verdicts": verdicts,
-                 "null": ref, "verdict": verdicts.get(ref) if ref else None,
-                 "ratio": ratio_text(test.get("observed_net_m"), test.get("null_median_m")) if test is not None else "",
-                 "pattern": residency_text(r) if r is not None else None,
-                 "candidate_text": candidate_text(r, tests) if r is not None else "–",
-                 "area": areas.get(aid), "motion": motion.get(aid), "states": states.get(aid)}
+        facts: dict[str, Any] = {
+            "species": None if s is None else s.get("species"), "test": test, "verdicts": verdicts,
+            "null": ref, "verdict": verdicts.get(ref) if ref else None,
+            "ratio": ratio_text(test.get("observed_net_m"), test.get("null_median_m")) if test is not None else "",
+            "pattern": residency_text(r) if r is not None else None,
+            "candidate_text": candidate_text(r, tests) if r is not None else "–",
+            "area": areas.get(aid), "motion": motion.get(aid), "states": states.get(aid)}
         facts["days"] = human.days(s.get("first_time"), s.get("last_time")) if s is not None else math.nan
         facts["fixes"] = s.get("n_fixes") if s is not None else None
         facts["candidate"] = facts["candidate_text"].startswith("yes")

@@ -121,7 +121,7 @@ def turn_data(fitted: AnimalFits | None) -> dict | None:
 
 # --- NSD against the nulls -----------------------------------------------------
 
-def null_panels(null_curves: dict) -> tuple[list, str] | None:
+def null_panels(null_curves: dict | None) -> tuple[list, str] | None:
     """One panel per null model with an observed curve; and the x-axis label."""
     panels, label = [], "step"
     for name, curve in (null_curves or {}).items():
@@ -137,7 +137,7 @@ def null_panels(null_curves: dict) -> tuple[list, str] | None:
             x, label = _values(seconds) / 86400.0, "days since the first fix"
         else:
             x, label = np.arange(observed.size, dtype=float), "steps since the first fix"
-        panel = {"name": str(name), "x": x, "observed": observed}
+        panel: dict[str, object] = {"name": str(name), "x": x, "observed": observed}
         for key in ("lo", "hi", "mean"):
             value = _first(curve, _NULL_KEYS[key])
             panel[key] = None if value is None or _values(value).size != x.size else _values(value)
@@ -148,7 +148,7 @@ def null_panels(null_curves: dict) -> tuple[list, str] | None:
 
 # --- residency ----------------------------------------------------------------
 
-def residency_data(curve: dict, residency_row: dict) -> dict | None:
+def residency_data(curve: dict | None, residency_row: dict | None) -> dict | None:
     """Times, observed NSD and fitted curves for the residency figure."""
     curve = curve or {}
     time = _first(curve, ("time", "times", "t"))

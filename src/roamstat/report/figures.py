@@ -172,7 +172,7 @@ def step_histogram(step_m, curves, log_axes: bool) -> bytes:
     if log_axes:
         ax.set_xscale("log")
         ax.set_yscale("log")
-        if lowest is not None:
+        if lowest is not None and highest is not None:
             # A light-tailed density falls to 1e-15 in the tail; the axis follows the data instead.
             ax.set_ylim(lowest / 5.0, highest * 3.0)
     ax.set_xlabel("step length (m)" + (", log scale" if log_axes else ""), fontsize=8)

@@ -24,7 +24,6 @@ from __future__ import annotations
 from typing import TYPE_CHECKING
 
 import math
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -95,8 +94,10 @@ def areas_html(ranges_a: pd.DataFrame, models_a: pd.DataFrame) -> str:
 
 def which_area(rows: pd.DataFrame, models_a: pd.DataFrame) -> str:
     """One sentence: which 95 % area to cite for this animal, and why."""
-    best = models_a.loc[models_a["best"].astype(bool), "model"] if len(models_a) and "best" in models_a else []
-    best = str(best.iloc[0]) if len(best) else None
+    best = None
+    if len(models_a) and "best" in models_a:
+        picked = models_a.loc[models_a["best"].astype(bool), "model"]
+        best = str(picked.iloc[0]) if len(picked) else None
     by_method = rows.set_index("method")
     autocorr = by_method.loc["kde_autocorr"] if "kde_autocorr" in by_method.index else None
     if autocorr is not None:

@@ -114,7 +114,7 @@ def disagreement(verdicts: dict, medians: dict) -> str:
     spread = {n: m for n, m in medians.items() if n in decisive and m == m and m is not None}
     said = ", ".join(f"{v} under {n}" for n, v in decisive.items())
     if len(spread) >= 2:
-        far, near = max(spread, key=spread.get), min(spread, key=spread.get)
+        far, near = max(spread, key=spread.__getitem__), min(spread, key=spread.__getitem__)
         return (f"Nulls disagree ({said}): the {far} null's walks end a median {spread[far] / 1000:.3g} km from the "
                 f"start, the {near} null's {spread[near] / 1000:.3g} km; a null built from heavier-tailed or "
                 "straighter steps travels farther, so 'farther' is harder to reach under it.")

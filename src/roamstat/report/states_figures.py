@@ -19,6 +19,7 @@ for Time Series: An Introduction Using R, 2nd ed. CRC Press (pseudo-residuals, Â
 from __future__ import annotations
 
 import math
+from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
@@ -27,6 +28,9 @@ from scipy import stats
 
 from roamstat.report.figures import NORMAL, _coordinate_labels, _new, _png, distance_scale
 from roamstat.states.families import step_model, turn_model
+
+if TYPE_CHECKING:
+    from roamstat.report.sections import Fragment
 
 #: One colour per state (blue, orange, bluish green, reddish purple of the Okabe & Ito 2008 set):
 #: distinguishable under the common colour-vision deficiencies.
@@ -47,7 +51,7 @@ CAPTIONS = {
 }
 
 
-def _colour(state: int) -> str:
+def _colour(state: int | np.integer) -> str:
     return PALETTE[(int(state) - 1) % len(PALETTE)]
 
 
@@ -139,7 +143,9 @@ def state_track(x_m, y_m, state, masked: bool = False) -> bytes:
     for k in _states_present(s[:-1][legs]):
         pick = np.flatnonzero(legs & (s[:-1] == k))
         segments = np.stack([np.column_stack([x[pick], y[pick]]), np.column_stack([x[pick + 1], y[pick + 1]])], axis=1)
-        ax.add_collection(LineCollection(segments, colors=_colour(k), linewidths=1.1, label=f"state {k}", zorder=2))
+        # matplotlib takes a (n, 2, 2) array of segments; its stubs only admit a sequence of arrays
+        ax.add_collection(LineCollection(segments, colors=_colour(k), linewidths=1.1, label=f"state {k}",  # type: ignore[arg-type]
+                                         zorder=2))
     ax.autoscale_view()
     _coordinate_labels(ax, unit, masked)
     ax.legend(fontsize=7)
