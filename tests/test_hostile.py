@@ -63,7 +63,7 @@ def check_outcome(code: int, err: str, path: Path, out: Path) -> dict | None:
     return manifest
 
 
-@pytest.mark.parametrize("name, command, expected", EXPECTED[["file", "command", "exit"]].itertuples(index=False),
+@pytest.mark.parametrize("name, command, expected", list(EXPECTED[["file", "command", "exit"]].itertuples(index=False)),
                          ids=list(EXPECTED["file"]))
 def test_corpus_file_has_its_expected_outcome(name, command, expected, tmp_path):
     path, out = HOSTILE / name, tmp_path / "out"
