@@ -490,7 +490,7 @@ def finalise_residency(residency: pd.DataFrame, null_tests: pd.DataFrame | None 
             failed[i].append(f"farther than the {null_name} null")
         if best is not None and best.get(animal) not in RANGE_RESIDENT:
             failed[i].append(f"best motion model {best.get(animal) or 'missing'} is not range-resident")
-        if n_eff is not None and not n_eff.get(animal, 0.0) >= MIN_N_EFFECTIVE:
+        elif n_eff is not None and not n_eff.get(animal, 0.0) >= MIN_N_EFFECTIVE:  # (no area without a range model)
             failed[i].append(f"effective sample size {n_eff.get(animal, math.nan):.1f} below {MIN_N_EFFECTIVE:g}")
     out["range_study_candidate"] = [not f for f in failed]
     out["range_study_note"] = ["; ".join(f) for f in failed]

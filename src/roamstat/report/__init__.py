@@ -216,7 +216,7 @@ def _overview(rows: dict, nulls: list[str], links: dict, tables: dict) -> str:
         if f["area"] is not None and "not range-resident" in str(f["area"].get("note", "")):
             area = 'none<br><span class="meta">not range-resident</span>'  # no stationary home range to cite
         elif f["area"] is not None:
-            area = f"{esc(area_text(f['area']))}<br><span class=\"meta\">{esc(f['area']['method'])} 95 %</span>"
+            area = f"{esc(area_text(f['area']))}<br><span class=\"meta nowrap\">{esc(f['area']['method'])} 95 %</span>"
         wrap = ' class="nowrap"' if len(aid) <= 16 else ""
         cells = [f'<a{wrap} href="{esc(links[aid])}">{esc(short_id(aid))}</a>{species}', tracked, scale, verdicts,
                  esc(f["pattern"] or "–"), esc(f["candidate_text"]), area]

@@ -280,11 +280,13 @@ def residency_text(row) -> str:
 
 def candidate_text(row, tests: pd.DataFrame) -> str:
     """"yes"/"no" with its reason (a stage's own reason column when it gives one)."""
-    from roamstat.registry import UNBOUNDED_WALK_NULL
+    from roamstat.ranges.residency import RANDOM_WALK_NULLS
 
     value = row.get("range_study_candidate")
     if human.missing(value):
         return "–"
+    consulted = next((n for n in RANDOM_WALK_NULLS if n in set(tests.get("null_model", []))), RANDOM_WALK_NULLS[-1]) \
+        if isinstance(tests, pd.DataFrame) else RANDOM_WALK_NULLS[-1]
     for column in ("range_study_note", "range_study_reason", "candidate_reason"):
         if isinstance(row.get(column), str) and row[column]:
             return ("yes: " if bool(value) else "no: ") + row[column]
@@ -292,10 +294,10 @@ def candidate_text(row, tests: pd.DataFrame) -> str:
     if pattern.startswith("insufficient"):
         return f"no: {pattern}"  # too few fixes for a residency class: no range-study claim either
     if bool(value):
-        return f"yes: {pattern} pattern, not farther than the {UNBOUNDED_WALK_NULL} null"
+        return f"yes: {pattern} pattern, not farther than the {consulted} null"
     if pattern not in ("resident", "sedentary"):
         return f"no: {pattern} pattern"
-    return f"no: farther than the {UNBOUNDED_WALK_NULL} null"
+    return f"no: farther than the {consulted} null"
 
 
 #: The per-animal sections in page order; later stages append ``(name, builder)``.
