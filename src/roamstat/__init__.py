@@ -2,6 +2,6 @@
 
 from roamstat.errors import RoamstatError
 
-__version__ = "0.1.0"
+__version__ = "0.2.0"
 
 __all__ = ["RoamstatError", "__version__"]
