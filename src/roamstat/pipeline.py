@@ -160,8 +160,10 @@ def analyse_animal(task: AnimalTask) -> AnimalResult:
     """Models, behavioural states, null tests and ranges of one animal (rows per :mod:`roamstat.rows`)."""
     cfg, aid = task.cfg, task.animal_id
     result = AnimalResult(animal_id=aid)
+    # motion and ranges see the same located fixes: selected and sorted once
+    located = rows.located(task.fixes) if {"motion", "ranges"} & set(task.stages) else None
     if "motion" in task.stages:
-        _motion_stage(task, result)
+        _motion_stage(task, located, result)
     if "fit" in task.stages:
         from roamstat import models
 
@@ -184,7 +186,6 @@ def analyse_animal(task: AnimalTask) -> AnimalResult:
     if "ranges" in task.stages:
         from roamstat import ranges
 
-        located = rows.located(task.fixes)
         row, curve = ranges.residency_animal(located, cfg)
         result.residency = {"animal_id": aid, **row}
         result.residency_curve = curve
@@ -195,14 +196,16 @@ def analyse_animal(task: AnimalTask) -> AnimalResult:
     return result
 
 
-def _motion_stage(task: AnimalTask, result: AnimalResult) -> None:
+def _motion_stage(task: AnimalTask, located: pd.DataFrame, result: AnimalResult) -> None:
     """Fit the motion models once on the observed fixes: motion_models.csv and track_smoothed.csv rows."""
     from roamstat.motion import motion_table
     from roamstat.motion.animal import fit_animal_motion, smoothed_track
     from roamstat.track import duration_s
 
     cfg = task.cfg
-    result.motion = fit_animal_motion(rows.located(task.fixes), cfg)
+    result.motion = fit_animal_motion(located, cfg)
+    if not result.motion.fits and not cfg.mask_locations:  # too few fixes: no rows (concat_tables keeps the columns)
+        return
     result.motion_models = _with_id(motion_table(result.motion.fits), task.animal_id)
     predict_s = duration_s(cfg.predict, "--predict") if cfg.predict else None
     smoothed = smoothed_track(result.motion, task.animal_id, predict_s)
@@ -337,8 +340,9 @@ def _import_stage_modules(stages) -> None:
 
 
 def concat_tables(frames: list[pd.DataFrame], empty_columns=()) -> pd.DataFrame:
-    """Non-empty frames stacked; else the first frame's (empty) layout, or the given columns without frames."""
+    """Non-empty frames stacked; else the first frame's (empty) layout, or the given columns without one."""
     filled = [f for f in frames if len(f)]
     if filled:
         return pd.concat(filled, ignore_index=True)
-    return frames[0].reset_index(drop=True) if frames else pd.DataFrame(columns=list(empty_columns))
+    laid_out = [f for f in frames if len(f.columns)]  # a stage that skipped a short animal leaves no columns
+    return laid_out[0].reset_index(drop=True) if laid_out else pd.DataFrame(columns=list(empty_columns))
