@@ -189,8 +189,14 @@ def analyse_animal(task: AnimalTask) -> AnimalResult:
         row, curve = ranges.residency_animal(located, cfg)
         result.residency = {"animal_id": aid, **row}
         result.residency_curve = curve
-        range_rows, features, extras = ranges.ranges_animal(located, cfg, task.origin, model=_range_model(task, result))
-        result.ranges = _with_id(pd.DataFrame(range_rows), aid)
+        from roamstat.ranges.estimate import MIN_FIXES, too_few_fixes
+
+        if len(located) < MIN_FIXES:  # what ranges_animal returns, without selecting the located fixes again
+            range_rows, features, extras = too_few_fixes(len(located), cfg.mask_locations)
+        else:
+            range_rows, features, extras = ranges.ranges_animal(located, cfg, task.origin,
+                                                                model=_range_model(task, result))
+        result.ranges = _with_id(range_rows, aid)
         result.features = features
         result.range_extras = extras
     return result
@@ -234,7 +240,10 @@ def _range_model(task: AnimalTask, result: AnimalResult):
     return from_motion_fit(debiased_fit(motion.best, motion.t_s, motion.error, rng))
 
 
-def _with_id(table: pd.DataFrame, animal_id: str) -> pd.DataFrame:
+def _with_id(table: pd.DataFrame | list[dict], animal_id: str) -> pd.DataFrame:
+    """``table`` (a frame or plain rows) with ``animal_id`` as its first column."""
+    if isinstance(table, list) and table:  # plain rows: one construction, cheaper than an insert
+        return pd.DataFrame([{"animal_id": animal_id, **row} for row in table])
     table = pd.DataFrame(table).reset_index(drop=True)
     table.insert(0, "animal_id", animal_id)
     return table

@@ -252,6 +252,8 @@ NAT_NS = np.iinfo(np.int64).min
 
 def as_ns(times) -> np.ndarray:
     """Int64 nanoseconds since the epoch (UTC) of a datetime column (NaT as the int64 minimum)."""
+    if isinstance(times, np.ndarray) and times.dtype.kind == "M":  # naive numpy times are UTC here
+        return times.astype("datetime64[ns]").view(np.int64)
     series = times if isinstance(times, pd.Series) else pd.Series(times)
     if not isinstance(series.dtype, pd.DatetimeTZDtype):
         series = pd.to_datetime(series, utc=True)
