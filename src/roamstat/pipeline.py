@@ -246,7 +246,7 @@ def _with_id(table: pd.DataFrame | list[dict], animal_id: str) -> pd.DataFrame:
     if isinstance(table, list) and table:  # plain rows: one construction, cheaper than an insert
         return pd.DataFrame([{"animal_id": animal_id, **row} for row in table])
     table = pd.DataFrame(table).reset_index(drop=True)
-    table.insert(0, "animal_id", animal_id)
+    table.insert(0, "animal_id", pd.array([animal_id] * len(table)))  # an array: a scalar is broadcast slowly
     return table
 
 
