@@ -50,7 +50,7 @@ from roamstat.models.fit import FIT_INTERVAL_TOLERANCE, on_interval
 from roamstat.nulls import NullUnavailable, build_null, short_steps
 from roamstat.split import simulate_replicates
 from roamstat.registry import NULLS
-from roamstat.track import duration_s
+from roamstat.track import NAT_NS, as_ns, duration_s
 
 MAX_CURVE_POINTS = 200  # NSD curve evaluated at most here (memory and figure size, no source)
 ENVELOPE = (0.025, 0.975)  # pointwise and endpoint central 95 % interval
@@ -201,14 +201,14 @@ class NullCurve:
 
 def _clean_track(fixes_a: pd.DataFrame):
     """Seconds since the first fix, x, y (sorted by time) and the number of rows without them."""
-    t = pd.to_datetime(fixes_a["time"], utc=True)
-    x = pd.to_numeric(fixes_a["x_m"], errors="coerce").to_numpy(dtype=float)
-    y = pd.to_numeric(fixes_a["y_m"], errors="coerce").to_numpy(dtype=float)
-    good = t.notna().to_numpy() & np.isfinite(x) & np.isfinite(y)
+    ns = as_ns(fixes_a["time"])
+    x = _column(fixes_a, "x_m")
+    y = _column(fixes_a, "y_m")
+    good = (ns != NAT_NS) & np.isfinite(x) & np.isfinite(y)
     if not good.any():
         return np.empty(0), np.empty(0), np.empty(0), int(np.count_nonzero(~good)), good
-    t = t[good]
-    t_s = ((t - t.min()) / pd.Timedelta(seconds=1)).to_numpy(dtype=float)
+    ns = ns[good]
+    t_s = (ns - ns.min()) / 1e9  # plain integer nanoseconds: pandas' Timedelta arithmetic costs per call
     order = np.argsort(t_s, kind="stable")
     return t_s[order], x[good][order], y[good][order], int(np.count_nonzero(~good)), good
 
@@ -296,21 +296,23 @@ def test_animal(fixes_a: pd.DataFrame, steps_a: pd.DataFrame, fits, nominal_dt_s
     children = dict(zip(NULL_MODELS, rng.spawn(len(NULL_MODELS))))
     if getattr(cfg, "resample", None):
         nominal_dt_s = duration_s(cfg.resample, "--resample")
-    discrete = views.analysed(fixes_a)
-    observed = views.observed(fixes_a)
-    n_obs_steps = int(np.count_nonzero(np.isfinite(_column(steps_a, "step_m"))))
-    # the short steps the walks keep in proportion come from the same one-interval steps as the fits
-    short = short_steps(_column(steps_a, "step_m")[on_interval(steps_a)[0]], np.size(_values(fits, "step_values")),
-                        cfg.min_step)
+    step_m = _column(steps_a, "step_m")
+    n_obs_steps = int(np.count_nonzero(np.isfinite(step_m)))
+    discrete_obs = None  # the observed curve is the same for every step-based null: built once
     rows, curves = [], {}
     for name in cfg.nulls:
         walk = NULLS[name].load()
         if getattr(walk, "in_time", False):
+            observed = views.observed(fixes_a)
             obs, why = _observed_in_time(observed, cfg)
             make = partial(walk, observed, cfg, motion)
         else:
-            obs, why = _observed(discrete, n_obs_steps, nominal_dt_s, cfg)
-            make = partial(build_null, name, fits, short)
+            if discrete_obs is None:
+                # only the columns the curve reads: copying every column costs more than the curve
+                track = views.analysed(fixes_a, [c for c in ("time", "x_m", "y_m") if c in fixes_a.columns])
+                discrete_obs = _observed(track, n_obs_steps, nominal_dt_s, cfg)
+            obs, why = discrete_obs
+            make = partial(_step_null, name, fits, steps_a, step_m, cfg.min_step)
         row: dict[str, Any] = {c: math.nan for c in ROW_COLUMNS}
         row.update(null_model=name, n_steps=obs.get("n_steps", 0), observed_net_m=obs.get("net_m", math.nan),
                    note=obs.get("note", ""))
@@ -329,6 +331,12 @@ def test_animal(fixes_a: pd.DataFrame, steps_a: pd.DataFrame, fits, nominal_dt_s
             row["note"] = _join(getattr(null, "note", ""), row["note"])
         rows.append(row)
     return pd.DataFrame(rows, columns=ROW_COLUMNS), curves
+
+
+def _step_null(name: str, fits, steps_a: pd.DataFrame, step_m: np.ndarray, min_step: float):
+    """A step-based null; the short steps it keeps in proportion come from the fits' one-interval steps."""
+    short = short_steps(step_m[on_interval(steps_a)[0]], np.size(_values(fits, "step_values")), min_step)
+    return build_null(name, fits, short)
 
 
 def _observed(fixes_a, n_obs_steps, nominal_dt_s, cfg) -> tuple[dict, str]:
@@ -397,7 +405,10 @@ def _values(fits, name) -> np.ndarray:
 def _column(frame, name) -> np.ndarray:
     if frame is None or name not in getattr(frame, "columns", ()):
         return np.empty(0)
-    return pd.to_numeric(frame[name], errors="coerce").to_numpy(dtype=float)
+    column = frame[name]
+    if column.dtype.kind == "f":  # already numeric: skip the costly coercion
+        return column.to_numpy(dtype=float)
+    return pd.to_numeric(column, errors="coerce").to_numpy(dtype=float)
 
 
 def _join(*parts: str) -> str:

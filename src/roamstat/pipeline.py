@@ -14,6 +14,7 @@ from datetime import datetime, timezone
 from pathlib import Path
 from typing import TYPE_CHECKING
 
+import numpy as np
 import pandas as pd
 
 from roamstat import rows
@@ -160,8 +161,10 @@ def analyse_animal(task: AnimalTask) -> AnimalResult:
     """Models, behavioural states, null tests and ranges of one animal (rows per :mod:`roamstat.rows`)."""
     cfg, aid = task.cfg, task.animal_id
     result = AnimalResult(animal_id=aid)
+    # motion and ranges see the same located fixes: selected and sorted once
+    located = rows.located(task.fixes) if {"motion", "ranges"} & set(task.stages) else None
     if "motion" in task.stages:
-        _motion_stage(task, result)
+        _motion_stage(task, located, result)
     if "fit" in task.stages:
         from roamstat import models
 
@@ -184,25 +187,32 @@ def analyse_animal(task: AnimalTask) -> AnimalResult:
     if "ranges" in task.stages:
         from roamstat import ranges
 
-        located = rows.located(task.fixes)
         row, curve = ranges.residency_animal(located, cfg)
         result.residency = {"animal_id": aid, **row}
         result.residency_curve = curve
-        range_rows, features, extras = ranges.ranges_animal(located, cfg, task.origin, model=_range_model(task, result))
-        result.ranges = _with_id(pd.DataFrame(range_rows), aid)
+        from roamstat.ranges.estimate import MIN_FIXES, too_few_fixes
+
+        if len(located) < MIN_FIXES:  # what ranges_animal returns, without selecting the located fixes again
+            range_rows, features, extras = too_few_fixes(len(located), cfg.mask_locations)
+        else:
+            range_rows, features, extras = ranges.ranges_animal(located, cfg, task.origin,
+                                                                model=_range_model(task, result))
+        result.ranges = _with_id(range_rows, aid)
         result.features = features
         result.range_extras = extras
     return result
 
 
-def _motion_stage(task: AnimalTask, result: AnimalResult) -> None:
+def _motion_stage(task: AnimalTask, located: pd.DataFrame, result: AnimalResult) -> None:
     """Fit the motion models once on the observed fixes: motion_models.csv and track_smoothed.csv rows."""
     from roamstat.motion import motion_table
     from roamstat.motion.animal import fit_animal_motion, smoothed_track
     from roamstat.track import duration_s
 
     cfg = task.cfg
-    result.motion = fit_animal_motion(rows.located(task.fixes), cfg)
+    result.motion = fit_animal_motion(located, cfg)
+    if not result.motion.fits and not cfg.mask_locations:  # too few fixes: no rows (concat_tables keeps the columns)
+        return
     result.motion_models = _with_id(motion_table(result.motion.fits), task.animal_id)
     predict_s = duration_s(cfg.predict, "--predict") if cfg.predict else None
     smoothed = smoothed_track(result.motion, task.animal_id, predict_s)
@@ -231,9 +241,12 @@ def _range_model(task: AnimalTask, result: AnimalResult):
     return from_motion_fit(debiased_fit(motion.best, motion.t_s, motion.error, rng))
 
 
-def _with_id(table: pd.DataFrame, animal_id: str) -> pd.DataFrame:
+def _with_id(table: pd.DataFrame | list[dict], animal_id: str) -> pd.DataFrame:
+    """``table`` (a frame or plain rows) with ``animal_id`` as its first column."""
+    if isinstance(table, list) and table:  # plain rows: one construction, cheaper than an insert
+        return pd.DataFrame([{"animal_id": animal_id, **row} for row in table])
     table = pd.DataFrame(table).reset_index(drop=True)
-    table.insert(0, "animal_id", animal_id)
+    table.insert(0, "animal_id", pd.array([animal_id] * len(table)))  # an array: a scalar is broadcast slowly
     return table
 
 
@@ -241,15 +254,30 @@ def animal_tasks(loaded: Loaded, stages: tuple, cfg: Config) -> list[AnimalTask]
     """One task per animal, in sorted id order (the order of every output table)."""
     # every command with a per-animal stage runs the steps stage first, which fills both
     assert loaded.summary is not None and loaded.steps is not None
-    nominal = loaded.summary.set_index("animal_id")["nominal_dt_s"]
-    steps_by = dict(tuple(loaded.steps.groupby("animal_id", sort=True)))
+    nominal = dict(zip(loaded.summary["animal_id"], loaded.summary["nominal_dt_s"]))
+    steps_by = dict(_blocks(loaded.steps))
     tasks = []
-    for aid, fixes_a in loaded.fixes.groupby("animal_id", sort=True):
-        steps_a = steps_by.get(aid, loaded.steps.iloc[0:0])
-        tasks.append(AnimalTask(str(aid), fixes_a.reset_index(drop=True), steps_a.reset_index(drop=True),
+    for aid, fixes_a in _blocks(loaded.fixes):
+        steps_a = steps_by[aid] if aid in steps_by else loaded.steps.iloc[0:0].reset_index(drop=True)
+        tasks.append(AnimalTask(str(aid), fixes_a, steps_a,
                                 float(nominal.get(aid, float("nan"))), stages, cfg, loaded.origin,
                                 loaded.projections.get(aid)))
     return tasks
+
+
+def _blocks(table: pd.DataFrame):
+    """(animal id, its rows with a fresh index) in sorted id order, rows in table order.
+
+    Positional slices of the table sorted by animal (usually it already is): a groupby builds
+    each group by fancy indexing, which costs far more per animal.
+    """
+    codes, ids = pd.factorize(table["animal_id"], sort=True)
+    if np.any(codes[1:] < codes[:-1]):
+        order = np.argsort(codes, kind="stable")
+        table, codes = table.iloc[order], codes[order]
+    starts = np.searchsorted(codes, np.arange(len(ids) + 1))
+    for code, aid in enumerate(ids):  # missing ids (code -1) are dropped, as groupby does
+        yield aid, table.iloc[starts[code]:starts[code + 1]].reset_index(drop=True)
 
 
 def analyse(loaded: Loaded, stages: tuple, cfg: Config, clock: StageClock | None = None,
@@ -337,8 +365,9 @@ def _import_stage_modules(stages) -> None:
 
 
 def concat_tables(frames: list[pd.DataFrame], empty_columns=()) -> pd.DataFrame:
-    """Non-empty frames stacked; else the first frame's (empty) layout, or the given columns without frames."""
+    """Non-empty frames stacked; else the first frame's (empty) layout, or the given columns without one."""
     filled = [f for f in frames if len(f)]
     if filled:
         return pd.concat(filled, ignore_index=True)
-    return frames[0].reset_index(drop=True) if frames else pd.DataFrame(columns=list(empty_columns))
+    laid_out = [f for f in frames if len(f.columns)]  # a stage that skipped a short animal leaves no columns
+    return laid_out[0].reset_index(drop=True) if laid_out else pd.DataFrame(columns=list(empty_columns))

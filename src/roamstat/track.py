@@ -153,8 +153,8 @@ def fix_schedule(times) -> dict:
         ``median_dt_s``, ``nominal_dt_s``, ``regularity`` (NaN with fewer
         than two distinct times).
     """
-    ns = _as_ns(pd.Series(pd.to_datetime(pd.Series(times), utc=True)))
-    return _schedule_from_ns(np.sort(ns[ns != np.iinfo(np.int64).min]))
+    ns = as_ns(times)
+    return _schedule_from_ns(np.sort(ns[ns != NAT_NS]))
 
 
 def _schedule_from_ns(ns_sorted: np.ndarray) -> dict:
@@ -214,7 +214,7 @@ def prepare_fixes(fixes: pd.DataFrame, cfg, input_crs: str | None = None):
 
     out = _sorted(fixes)
     codes, starts = _animal_blocks(out["animal_id"])
-    ns = _as_ns(out["time"])
+    ns = as_ns(out["time"])
     nominal = np.array([_schedule_from_ns(block)["nominal_dt_s"] for block in np.split(ns, starts[1:])]) if len(out) else np.array([])
     out["segment"] = _segments(ns, codes, starts, _gap_threshold_s(cfg, nominal))
     out["interpolated"] = False
@@ -233,7 +233,7 @@ def _sorted(fixes: pd.DataFrame) -> pd.DataFrame:
     out = fixes.reset_index(drop=True)
     out["animal_id"] = out["animal_id"].astype(str)
     codes = pd.factorize(out["animal_id"], sort=True)[0]
-    order = np.lexsort((_as_ns(out["time"]), codes))  # stable: equal keys keep input order
+    order = np.lexsort((as_ns(out["time"]), codes))  # stable: equal keys keep input order
     if np.array_equal(order, np.arange(order.size)):
         return out
     return out.iloc[order].reset_index(drop=True)
@@ -246,12 +246,18 @@ def _animal_blocks(animal_id: pd.Series):
     return codes, starts
 
 
-def _as_ns(times: pd.Series) -> np.ndarray:
-    """Int64 nanoseconds since the epoch (UTC) of a datetime column."""
-    series = pd.Series(times)
+#: Int64 nanoseconds of NaT (pandas' missing time).
+NAT_NS = np.iinfo(np.int64).min
+
+
+def as_ns(times) -> np.ndarray:
+    """Int64 nanoseconds since the epoch (UTC) of a datetime column (NaT as the int64 minimum)."""
+    if isinstance(times, np.ndarray) and times.dtype.kind == "M":  # naive numpy times are UTC here
+        return times.astype("datetime64[ns]").view(np.int64)
+    series = times if isinstance(times, pd.Series) else pd.Series(times)
     if not isinstance(series.dtype, pd.DatetimeTZDtype):
         series = pd.to_datetime(series, utc=True)
-    return series.dt.tz_convert("UTC").astype("datetime64[ns, UTC]").array.asi8
+    return series.array.as_unit("ns").asi8  # tz-aware values are held in UTC: no conversion needed
 
 
 def _from_ns(ns: np.ndarray) -> pd.Series:
@@ -297,7 +303,7 @@ def _segments(ns: np.ndarray, codes: np.ndarray, starts: np.ndarray, threshold_s
 
 def _resample(fixes: pd.DataFrame, step_ns: int, projected_input: bool, input_crs) -> pd.DataFrame:
     """Add interpolated rows on a regular UTC grid within each segment."""
-    ns = _as_ns(fixes["time"])
+    ns = as_ns(fixes["time"])
     codes = pd.factorize(fixes["animal_id"], sort=True)[0]
     seg = fixes["segment"].to_numpy()
     first = np.flatnonzero(np.r_[True, (codes[1:] != codes[:-1]) | (seg[1:] != seg[:-1])])
@@ -443,7 +449,7 @@ def compute_steps(fixes: pd.DataFrame) -> pd.DataFrame:
     nxt = pair + 1
     lat = track["lat"].to_numpy(float)
     lon = track["lon"].to_numpy(float)
-    ns = _as_ns(track["time"])
+    ns = as_ns(track["time"])
     dist, depart, arrive = geodesic_inverse_full(lat[pair], lon[pair], lat[nxt], lon[nxt])
     zero = dist == 0
     depart[zero] = np.nan
@@ -477,7 +483,7 @@ def _time_to_observed_s(fixes: pd.DataFrame) -> np.ndarray:
     if "interpolated" not in fixes or not fixes["interpolated"].to_numpy(bool).any():
         return np.zeros(len(fixes))
     observed = ~fixes["interpolated"].to_numpy(bool)
-    ns = _as_ns(fixes["time"])
+    ns = as_ns(fixes["time"])
     rows = np.arange(len(fixes))
     before = np.maximum.accumulate(np.where(observed, rows, 0))
     after = np.minimum.accumulate(np.where(observed, rows, len(fixes) - 1)[::-1])[::-1]
@@ -525,7 +531,7 @@ def summarise(fixes: pd.DataFrame, steps: pd.DataFrame, rejected: pd.DataFrame) 
     obs_codes, obs_starts = _animal_blocks(observed["animal_id"].astype(str))
     ids = observed["animal_id"].astype(str).to_numpy()[obs_starts]
     obs_ends = np.r_[obs_starts[1:] - 1, len(observed) - 1]
-    obs_ns = _as_ns(observed["time"])
+    obs_ns = as_ns(observed["time"])
     schedules = pd.DataFrame([_schedule_from_ns(b) for b in np.split(obs_ns, obs_starts[1:])])
 
     out = pd.DataFrame({"animal_id": ids})

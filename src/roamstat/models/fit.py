@@ -283,6 +283,8 @@ def on_interval(steps_a: pd.DataFrame) -> tuple[np.ndarray, float, str]:
 def _numeric(frame: pd.DataFrame, name: str, default: float) -> np.ndarray:
     if name not in frame:
         return np.full(len(frame), default)
+    if frame[name].dtype.kind == "f":  # already numeric: skip the costly coercion
+        return frame[name].to_numpy(float)
     return pd.to_numeric(frame[name], errors="coerce").to_numpy(float)
 
 
@@ -303,7 +305,8 @@ def _observations(steps_a: pd.DataFrame, min_step: float):
     segment = steps_a["segment"].to_numpy() if "segment" in steps_a else np.zeros(len(steps_a))
     # a turn joins a step and the one before it: both must be fitted steps
     bad = ~usable | (short if min_step > 0 else np.zeros(len(steps_a), dtype=bool))
-    prev_bad = pd.Series(bad).groupby(segment).shift(1).fillna(False).to_numpy(bool)
+    prev_bad = np.zeros(len(steps_a), dtype=bool)  # the step before in the same segment (segments are contiguous runs)
+    prev_bad[1:] = bad[:-1] & (segment[1:] == segment[:-1])
     near = turn_ok & (bad | prev_bad)
     turn_note = ""
     if near.any():

@@ -13,6 +13,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import RoamstatError
+from ..track import as_ns
 from .errors import LocationError, location_error, read_class_table
 from .fit import MotionFit, best_fit, best_unbounded, fit_motion_models
 from .kalman import MOTION_MODELS
@@ -85,9 +86,9 @@ def fit_animal_motion(located: pd.DataFrame, cfg, models=MOTION_MODELS) -> Anima
     -------
     AnimalMotion
     """
-    time = pd.to_datetime(located["time"], utc=True)
-    time0 = time.iloc[0] if len(located) else None
-    t_s = ((time - time0) / pd.Timedelta(seconds=1)).to_numpy(float) if len(located) else np.empty(0)
+    ns = as_ns(located["time"])
+    time0 = pd.to_datetime(located["time"].iloc[0], utc=True) if len(located) else None
+    t_s = (ns - ns[0]) / 1e9 if len(located) else np.empty(0)
     x = located["x_m"].to_numpy(float)
     y = located["y_m"].to_numpy(float)
     error = error_of(located, cfg)

@@ -33,6 +33,7 @@ from roamstat.ranges.mask import MASK_NOTE, MASKED_FRAME, HiddenOrigin, hidden_o
 from roamstat.ranges.mcp import mcp_polygon
 from roamstat.ranges.model import RangeModel
 from roamstat.ranges.schoener import autocorrelation_note, schoener_ratio
+from roamstat.results import empty_table
 from roamstat.rows import located
 
 NOT_RESIDENT = "not range-resident over the tracking period: no stationary home range"
@@ -65,8 +66,8 @@ class RangeExtras:
     """
 
     contours: list = field(default_factory=list)
-    area_curve: pd.DataFrame = field(default_factory=lambda: pd.DataFrame(columns=EMPTY_CURVE))
-    track_xy: pd.DataFrame = field(default_factory=lambda: pd.DataFrame({"x_m": [], "y_m": []}))
+    area_curve: pd.DataFrame = field(default_factory=lambda: empty_table(EMPTY_CURVE))
+    track_xy: pd.DataFrame = field(default_factory=lambda: empty_table(("x_m", "y_m")))
     masked: bool = False
     note: str = ""
 
@@ -264,9 +265,7 @@ def ranges_animal(fixes_a: pd.DataFrame, cfg: Config | None = None, origin: Hidd
     animal_id = str(fixes_a["animal_id"].iloc[0]) if len(fixes_a) else ""
     n = len(obs)
     if n < MIN_FIXES:
-        note = f"only {n} observed fixes; ranges need at least {MIN_FIXES}"
-        return [_row(m, level, n=n, note=note, masked=masked) for m, level in RANGES + MODEL_RANGES], [], \
-            RangeExtras(masked=masked)
+        return too_few_fixes(n, masked)
     frame = animal_frame(obs)
     x, y = frame.forward(obs["lon"].to_numpy(float), obs["lat"].to_numpy(float))
     ratio = schoener_ratio(x, y)
@@ -324,6 +323,13 @@ def ranges_animal(fixes_a: pd.DataFrame, cfg: Config | None = None, origin: Hidd
         features.append(geojson.feature(outline, {"animal_id": animal_id, **row}))
     note = model_note if model is not None and not model.range_resident else ""
     return rows, features, RangeExtras(contours, curve, pd.DataFrame({"x_m": track_x, "y_m": track_y}), masked, note)
+
+
+def too_few_fixes(n: int, masked: bool) -> tuple[list[dict], list, RangeExtras]:
+    """:func:`ranges_animal` of an animal with ``n`` < ``MIN_FIXES`` located fixes: rows that say so."""
+    note = f"only {n} observed fixes; ranges need at least {MIN_FIXES}"
+    return [_row(m, level, n=n, note=note, masked=masked) for m, level in RANGES + MODEL_RANGES], [], \
+        RangeExtras(masked=masked)
 
 
 def _row(method, level, area_km2=math.nan, low=math.nan, high=math.nan, n=0, n_eff=math.nan, bandwidth_m=None,

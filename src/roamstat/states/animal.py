@@ -26,6 +26,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from roamstat.results import empty_table
 from roamstat.states.chain import Chain, build_chain
 from roamstat.states.decode import decode
 from roamstat.states.families import TURN_FAMILIES, check_families, step_model
@@ -121,8 +122,8 @@ def fit_animal_states(steps_a: pd.DataFrame, cfg, rng: np.random.Generator) -> S
         note = (f"K={','.join(map(str, skipped))} not fitted: {obs.n_obs} one-interval steps, "
                 f"{MIN_STEPS_PER_STATE} per state needed")
     if not fits:
-        return StatesResult(pd.DataFrame(columns=model_columns(max_k)),
-                            pd.DataFrame(columns=decoded_columns(max_k)), None, {}, chain, note)
+        return StatesResult(empty_table(model_columns(max_k)), empty_table(decoded_columns(max_k)), None, {}, chain,
+                            note)
     best_k = min(fits, key=lambda k: fits[k].bic)
     rows = _model_rows(animal, fits, best_k, chain.nominal_dt_s, max_k)
     decoded = _decoded_rows(animal, steps_a, chain, obs, fits[best_k], max_k)
