@@ -187,6 +187,7 @@ def analyse_animal(task: AnimalTask) -> AnimalResult:
     if "ranges" in task.stages:
         from roamstat import ranges
 
+        assert located is not None  # selected above whenever the ranges stage runs
         row, curve = ranges.residency_animal(located, cfg)
         result.residency = {"animal_id": aid, **row}
         result.residency_curve = curve
