@@ -23,7 +23,7 @@ import pytest
 
 from roamstat import run as run_module
 from roamstat.cli import main
-from roamstat.errors import RoamstatError
+from roamstat.errors import RoamstatError, Stopped
 from roamstat.outdir import OutputFolder
 from roamstat.spill import SpillFile
 
@@ -204,6 +204,19 @@ def test_out_through_a_file_is_a_clear_error_before_any_computing(small, tmp_pat
     assert main(["clean", str(small), "--out", str(tmp_path / "file.txt" / "sub"), "--quiet"]) == 2
     err = capsys.readouterr().err
     assert err.startswith("roamstat: error:") and "not a folder" in err and "Traceback" not in err
+
+
+@pytest.mark.parametrize("stop, code", [(KeyboardInterrupt(), 128 + signal.SIGINT),
+                                         (Stopped(signal.SIGTERM), 128 + signal.SIGTERM)])
+def test_a_stop_inside_compiled_code_is_a_stop_not_a_bug(small, tmp_path, monkeypatch, capsys, stop, code):
+    # A signal landing in a numba kernel surfaces as SystemError("... returned a result with an
+    # exception set") caused by the KeyboardInterrupt (seen in CI under SIGINT).
+    def compiled_code_stopped(*args, **kwargs):
+        raise SystemError("returned a result with an exception set") from stop
+    monkeypatch.setattr(run_module, "load", compiled_code_stopped)
+    assert main(["clean", str(small), "--out", str(tmp_path / "o"), "--quiet"]) == code
+    err = capsys.readouterr().err
+    assert "stopped by" in err and "internal error" not in err
 
 
 @pytest.fixture

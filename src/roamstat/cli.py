@@ -265,6 +265,9 @@ def main(argv: list[str] | None = None) -> int:
     except Stopped as exc:
         return _stopped(exc.signum)
     except Exception as exc:  # a bug, not bad input
+        signum = _stop_signal(exc)
+        if signum is not None:
+            return _stopped(signum)
         if args.debug:
             raise
         print(f"roamstat: internal error: {type(exc).__name__}: {shown(exc)} "
@@ -280,6 +283,23 @@ def _on_sigterm(handler):
         return signal.signal(signal.SIGTERM, handler) if handler is not None else None
     except ValueError:
         return None
+
+
+def _stop_signal(exc: BaseException) -> int | None:
+    """The signal behind an exception, if a stop caused it.
+
+    A signal that lands inside compiled code (a numba kernel) comes back wrapped: the kernel
+    returns with the KeyboardInterrupt or Stopped set, and Python raises SystemError with it as
+    the cause. Such a stop is still a stop, not a bug.
+    """
+    seen: BaseException | None = exc
+    while seen is not None:
+        if isinstance(seen, KeyboardInterrupt):
+            return signal.SIGINT
+        if isinstance(seen, Stopped):
+            return seen.signum
+        seen = seen.__cause__ or seen.__context__
+    return None
 
 
 def _stop(signum, frame):
