@@ -65,6 +65,9 @@ from scipy.stats import chi2
 
 MAX_LAG_CELLS = 2 ** 21  # time grid for the lag table; at most ~50 MB of FFT work (judgement)
 CELLS_PER_INTERVAL = 4  # lag resolution: a quarter of the median fix interval (judgement)
+# Below one degree of freedom the chi-square pivot stops making sense (its upper quantile is not
+# monotone in nu); one effective coordinate is the least an interval rests on (judgement, no source).
+MIN_DOF = 1.0
 H_BOUNDS = (1e-3, 10.0)  # bandwidth search, relative to sigma: wider than any optimum seen
 
 Acf = Callable[[np.ndarray], np.ndarray]
@@ -199,15 +202,22 @@ def area_interval(area_km2: float, n_eff: float, confidence: float = 0.95) -> tu
     nu = 2 n_eff degrees of freedom, which is exact for independent
     bivariate normal fixes and matches the variance for autocorrelated ones
     (Fleming et al. 2019 use the same chi-square form with their effective
-    degrees of freedom).
+    degrees of freedom).  For a fitted model whose time scale was corrected
+    for bias, pass n_effective times ``RangeModel.dof_factor``: the
+    correction widens the estimate's spread
+    (:func:`roamstat.ranges.model.correction_dof_factor`).
 
     Returns
     -------
     (low, high) : tuple of float
-        NaN when the area or n_eff is not finite and positive.
+        NaN when the area or n_eff is not finite and positive; ``high`` is
+        infinite when the data cannot bound the area from above.  At least
+        ``MIN_DOF`` degrees of freedom are used.
     """
     if not (math.isfinite(area_km2) and math.isfinite(n_eff) and n_eff > 0 and area_km2 >= 0):
         return math.nan, math.nan
-    nu = 2.0 * n_eff
+    nu = max(2.0 * n_eff, MIN_DOF)
     tail = (1.0 - confidence) / 2.0
-    return area_km2 * nu / float(chi2.isf(tail, nu)), area_km2 * nu / float(chi2.ppf(tail, nu))
+    lower_quantile = float(chi2.ppf(tail, nu))  # 0 in floating point for very wide intervals
+    high = area_km2 * nu / lower_quantile if lower_quantile > 0 else math.inf
+    return area_km2 * nu / float(chi2.isf(tail, nu)), high

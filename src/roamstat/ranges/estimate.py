@@ -112,9 +112,10 @@ def model_ranges(t_s, x, y, model: RangeModel, centre_xy) -> dict:
     for level in (95, 50):
         shape = affinity.scale(isopleth(grid, level / 100.0), scale, scale, origin=origin)
         area = shape.area / 1e6
-        out[("kde_autocorr", level)] = (shape, area, *area_interval(area, n_eff), h_m)
+        out[("kde_autocorr", level)] = (shape, area, *area_interval(area, n_eff * model.dof_factor), h_m)
         area = gaussian_area(model.sigma_m, level / 100.0)
-        out[("gaussian", level)] = (gaussian_outline(centre_xy, area), area, *area_interval(area, n_eff), None)
+        out[("gaussian", level)] = (gaussian_outline(centre_xy, area), area,
+                                    *area_interval(area, n_eff * model.dof_factor), None)
     return out
 
 
