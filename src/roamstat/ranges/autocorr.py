@@ -62,6 +62,9 @@ from collections.abc import Callable
 import numpy as np
 from scipy.optimize import minimize_scalar
 from scipy.stats import chi2
+from shapely import affinity
+
+from roamstat.ranges.kde import density_grid, isopleth
 
 MAX_LAG_CELLS = 2 ** 21  # time grid for the lag table; at most ~50 MB of FFT work (judgement)
 CELLS_PER_INTERVAL = 4  # lag resolution: a quarter of the median fix interval (judgement)
@@ -192,6 +195,41 @@ def kde_area_factor(h: float, centre_variance: float) -> float:
     (the idea; this Gaussian-reference form is derived here).
     """
     return 1.0 / (1.0 - centre_variance + h * h)
+
+
+def corrected_isopleths(x, y, h_m: float, area_factors: dict) -> dict:
+    """Kernel isopleths, each rescaled about the fixes' centroid by its factor in area.
+
+    Parameters
+    ----------
+    x, y : numpy.ndarray
+        Fixes in an equal-area frame, metres.
+    h_m : float
+        Kernel SD, metres.
+    area_factors : dict
+        {percent level: area factor}, e.g. :func:`kde_area_factor`, divided
+        by a shape factor when one is known.
+
+    Returns
+    -------
+    dict
+        {level: shapely geometry}.
+    """
+    grid = density_grid(x, y, h_m)
+    origin = (float(np.mean(x)), float(np.mean(y)))
+    return {level: affinity.scale(isopleth(grid, level / 100.0), math.sqrt(f), math.sqrt(f), origin=origin)
+            for level, f in area_factors.items()}
+
+
+def gaussian_equivalent_area(x, y, h_m: float, area_factor: float, level: int) -> float:
+    """Area (m²) of the level-% region of the normal law with the spread of the rescaled kernel estimate.
+
+    The kernel estimate's per-axis variance is the fixes' mean squared
+    deviation about their centroid plus h²; :func:`corrected_isopleths`
+    multiplies it by ``area_factor``.
+    """
+    spread = 0.5 * (float(np.var(x)) + float(np.var(y))) + h_m * h_m
+    return -2.0 * math.log1p(-level / 100.0) * math.pi * spread * area_factor
 
 
 def area_interval(area_km2: float, n_eff: float, confidence: float = 0.95) -> tuple[float, float]:

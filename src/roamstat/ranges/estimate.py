@@ -19,13 +19,12 @@ from typing import Callable, NamedTuple
 
 import numpy as np
 import pandas as pd
-from shapely import affinity
 from shapely.geometry import MultiPolygon
 
 from roamstat.config import Config
 from roamstat.ranges import geojson
 from roamstat.ranges.autocorr import (area_interval, autocorrelated_bandwidth, centre_variance_factor,
-                                      kde_area_factor, n_effective)
+                                      corrected_isopleths, kde_area_factor, n_effective)
 from roamstat.ranges.gaussian import gaussian_area, gaussian_outline
 from roamstat.ranges.frames import animal_frame
 from roamstat.ranges.kde import density_grid, isopleth, reference_bandwidth
@@ -105,12 +104,11 @@ def model_ranges(t_s, x, y, model: RangeModel, centre_xy) -> dict:
     w = centre_variance_factor(t_s, acf)
     h_rel = autocorrelated_bandwidth(t_s, acf)
     h_m = h_rel * model.sigma_m
-    grid = density_grid(x, y, h_m)
-    scale = math.sqrt(kde_area_factor(h_rel, w))
-    origin = (float(x.mean()), float(y.mean()))
+    factor = kde_area_factor(h_rel, w)
+    shapes = corrected_isopleths(x, y, h_m, {level: factor / model.kde_shape_factors.get(level, 1.0)
+                                             for level in (95, 50)})
     out: dict = {"n_effective": n_eff}
-    for level in (95, 50):
-        shape = affinity.scale(isopleth(grid, level / 100.0), scale, scale, origin=origin)
+    for level, shape in shapes.items():
         area = shape.area / 1e6
         out[("kde_autocorr", level)] = (shape, area, *area_interval(area, n_eff * model.dof_factor), h_m)
         area = gaussian_area(model.sigma_m, level / 100.0)
