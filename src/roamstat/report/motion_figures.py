@@ -29,7 +29,7 @@ import numpy as np
 import pandas as pd
 from matplotlib.patches import Circle
 
-from roamstat.report.figures import GREY, NORMAL, TRACK_COLOUR, _coordinate_labels, _new, _png, distance_scale
+from roamstat.report.figures import GREY, NORMAL, TRACK_COLOUR, _coordinate_labels, _png, _take, distance_scale, set_log
 from roamstat.report.html import esc, fmt, table
 
 if TYPE_CHECKING:
@@ -129,7 +129,7 @@ def smoothed_figure(smoothed_a: pd.DataFrame, fixes_a: pd.DataFrame, masked: boo
     rx = fixes_a["x_m"].to_numpy(float) if len(fixes_a) else np.empty(0)
     ry = fixes_a["y_m"].to_numpy(float) if len(fixes_a) else np.empty(0)
     scale, unit = distance_scale(np.concatenate([sx, sy, rx, ry]))
-    fig, ax = _new(NORMAL)
+    fig, ax = _take("smoothed", NORMAL)
     ax.scatter(rx / scale, ry / scale, s=5, color=GREY, alpha=0.7, label=f"raw fixes ({rx.size})")
     ax.plot(sx / scale, sy / scale, color=TRACK_COLOUR, linewidth=0.8, label="smoothed")
     if len(grid):
@@ -191,11 +191,10 @@ def semivariance_figure(motion) -> bytes | None:
     error_var = float(np.mean(motion.error_sd_m(fit) ** 2))
     grid = np.geomspace(lag.min(), lag.max(), 200)
     model = np.asarray(fit.semivariance(grid), dtype=float) + error_var
-    fig, ax = _new(NORMAL)
+    fig, ax = _take("semivariance", NORMAL)
     ax.scatter(lag / 3600.0, gamma, s=10, color=GREY, label="fixes (binned pairs)")
     ax.plot(grid / 3600.0, model, color=TRACK_COLOUR, linewidth=1.2, label=f"{fit.name} + location error")
-    ax.set_xscale("log")
-    ax.set_yscale("log")
+    set_log(ax)
     ax.set_xlabel("time lag (h)", fontsize=8)
     ax.set_ylabel("semi-variance per axis (m²)", fontsize=8)
     ax.tick_params(labelsize=8)
