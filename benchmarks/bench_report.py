@@ -7,7 +7,7 @@
    the null simulations alone) on the same input, measured side by side (goal: ratio <= 2).
 3. A large deployment (default 1,000 animals x 2,000 fixes, simulated correlated random walks)
    run end to end with `--workers 2`, report included; prints the wall time, its stages, the
-   peak memory (resident set of the run and its workers together, sampled every 0.5 s) and
+   peak memory (proportional set size of the run and its workers together, sampled every 0.5 s) and
    checks that every link and image of report.html and the animal pages resolves.
    This may take many minutes: shrink it with --animals/--fixes.
 
@@ -49,7 +49,7 @@ def roamstat_peak(*args: str) -> tuple[float, float]:
 
     def sample() -> None:
         while not done.wait(0.5):
-            peak[0] = max(peak[0], _tree_rss_kb(process.pid))
+            peak[0] = max(peak[0], _tree_pss_kb(process.pid))
 
     sampler = threading.Thread(target=sample, daemon=True)
     sampler.start()
@@ -61,26 +61,29 @@ def roamstat_peak(*args: str) -> tuple[float, float]:
     return time.perf_counter() - started, peak[0] / 1024
 
 
-def _tree_rss_kb(root: int) -> int:
-    """Resident set (kB) of ``root`` and all its descendants, from /proc (Linux; 0 elsewhere)."""
+def _tree_pss_kb(root: int) -> int:
+    """Memory (kB) of ``root`` and all its descendants, from /proc (Linux; 0 elsewhere).
+
+    Proportional set sizes are summed, not resident sets: forked workers share their parent's pages,
+    which a sum of resident sets would count once per worker.
+    """
     children: dict[int, list[int]] = {}
-    rss: dict[int, int] = {}
     for entry in os.scandir("/proc") if os.path.isdir("/proc") else []:
-        if not entry.name.isdigit():
-            continue
-        try:
-            status = Path(entry.path, "status").read_text()
-        except OSError:
-            continue  # the process ended while we looked
-        fields = dict(line.split(":", 1) for line in status.splitlines() if ":" in line)
-        pid = int(entry.name)
-        children.setdefault(int(fields.get("PPid", "0").strip() or 0), []).append(pid)
-        rss[pid] = int(fields.get("VmRSS", "0 kB").split()[0])
+        if entry.name.isdigit():
+            try:
+                parent = int(Path(entry.path, "stat").read_text().rsplit(")", 1)[1].split()[1])
+            except (OSError, IndexError, ValueError):
+                continue  # the process ended while we looked
+            children.setdefault(parent, []).append(int(entry.name))
     total, todo = 0, [root]
     while todo:
         pid = todo.pop()
-        total += rss.get(pid, 0)
         todo.extend(children.get(pid, []))
+        try:
+            rollup = Path(f"/proc/{pid}/smaps_rollup").read_text()
+        except OSError:
+            continue
+        total += sum(int(line.split()[1]) for line in rollup.splitlines() if line.startswith("Pss:"))
     return total
 
 

@@ -31,6 +31,7 @@ from matplotlib.patches import Circle
 
 from roamstat.report.figures import GREY, NORMAL, TRACK_COLOUR, _coordinate_labels, _png, _take, distance_scale, set_log
 from roamstat.report.html import esc, fmt, table
+from roamstat.report.pairs import binned_pairs, lag_range
 
 if TYPE_CHECKING:
     from roamstat.report.sections import Fragment
@@ -164,19 +165,12 @@ def empirical_semivariance(t_s, x_m, y_m, n_bins: int = LAG_BINS, max_pairs: int
     offsets = np.arange(1, n)
     if n * (n - 1) / 2 > max_pairs:
         offsets = np.unique(np.rint(np.geomspace(1, n - 1, max(2, max_pairs // n))).astype(int))
-    lags, halves = [], []
-    for d in offsets:
-        lags.append(t[d:] - t[:-d])
-        halves.append(0.25 * ((x[d:] - x[:-d]) ** 2 + (y[d:] - y[:-d]) ** 2))
-    lag, half = np.concatenate(lags), np.concatenate(halves)
-    keep = lag > 0
-    lag, half = lag[keep], half[keep]
-    edges = np.geomspace(lag.min(), lag.max() * (1 + 1e-9), n_bins + 1)
-    which = np.clip(np.searchsorted(edges, lag, side="right") - 1, 0, n_bins - 1)
-    count = np.bincount(which, minlength=n_bins)
+    lo, hi = lag_range(t, offsets)
+    edges = np.geomspace(lo, hi * (1 + 1e-9), n_bins + 1)
+    count, lag_sum, half_sum = binned_pairs(t, x, y, offsets, edges)
     used = count > 0
-    mean_lag = np.bincount(which, lag, n_bins)[used] / count[used]
-    gamma = np.bincount(which, half, n_bins)[used] / count[used]
+    mean_lag = lag_sum[used] / count[used]
+    gamma = half_sum[used] / count[used]
     return mean_lag, gamma, count[used]
 
 
