@@ -9,13 +9,14 @@ id into a figure: headings live in the HTML, where they are escaped.
 from __future__ import annotations
 
 import io
+import math
 import threading
 
 import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.dates import AutoDateLocator, ConciseDateFormatter, date2num
 from matplotlib.figure import Figure
-from matplotlib.ticker import MaxNLocator
+from matplotlib.ticker import LogFormatter, MaxNLocator
 from matplotlib.patches import PathPatch
 from matplotlib.path import Path as MplPath
 
@@ -61,11 +62,14 @@ def _take(key, size, margins=None, **kwargs):
     for ax in np.ravel(axes):
         for artist in [*ax.lines, *ax.collections, *ax.patches, *ax.texts, *ax.images]:
             artist.remove()
+        ax.containers.clear()  # a bar chart's container would otherwise stay in the next legend
         if ax.legend_ is not None:
             ax.legend_.remove()
         if ax.name != "polar":
-            ax.set_xscale("linear")
-            ax.set_yscale("linear")
+            # Reset only an axis whose scale, ticks or labels were changed: a reset rebuilds them.
+            for axis, set_scale in ((ax.xaxis, ax.set_xscale), (ax.yaxis, ax.set_yscale)):
+                if axis.get_scale() != "linear" or not (axis.isDefault_majloc and axis.isDefault_majfmt):
+                    set_scale("linear")
             ax.set_aspect("auto")
             ax.locator_params(nbins=5)
         ax.set_xlabel("")
@@ -74,6 +78,34 @@ def _take(key, size, margins=None, **kwargs):
         ax.relim()
         ax.set_autoscale_on(True)
     return held
+
+
+_SUPERSCRIPT = str.maketrans("-0123456789", "⁻⁰¹²³⁴⁵⁶⁷⁸⁹")
+
+
+class PowerLabels(LogFormatter):
+    """Log-axis tick labels as plain text: 0.01, 200, 5000, then 10⁵ and 2×10⁶.
+
+    The default log labels are mathtext, whose parsing cost about a fifth of a log-axis
+    figure (profiled on the sample deployment); which ticks get a label is unchanged.
+    """
+
+    def _num_to_string(self, x, vmin, vmax):
+        if 1e-3 <= x < 1e5:
+            return f"{x:g}"
+        exponent = math.floor(math.log10(x) + 1e-9)
+        mantissa = round(x / 10.0 ** exponent)
+        power = "10" + str(exponent).translate(_SUPERSCRIPT)
+        return power if mantissa == 1 else f"{mantissa}×{power}"
+
+
+def set_log(ax, x: bool = True, y: bool = True) -> None:
+    """Log scale on the chosen axes, labelled by :class:`PowerLabels`."""
+    for wanted, axis, set_scale in ((x, ax.xaxis, ax.set_xscale), (y, ax.yaxis, ax.set_yscale)):
+        if wanted:
+            set_scale("log")
+            axis.set_major_formatter(PowerLabels())
+            axis.set_minor_formatter(PowerLabels())
 
 
 def _png(fig) -> bytes:
@@ -170,8 +202,7 @@ def step_histogram(step_m, curves, log_axes: bool) -> bytes:
         shown = np.isfinite(density) & (density > 0)
         ax.plot(np.asarray(x, float)[shown], density[shown], linewidth=1.6, label=str(label))
     if log_axes:
-        ax.set_xscale("log")
-        ax.set_yscale("log")
+        set_log(ax)
         if lowest is not None and highest is not None:
             # A light-tailed density falls to 1e-15 in the tail; the axis follows the data instead.
             ax.set_ylim(lowest / 5.0, highest * 3.0)

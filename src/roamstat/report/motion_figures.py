@@ -29,8 +29,9 @@ import numpy as np
 import pandas as pd
 from matplotlib.patches import Circle
 
-from roamstat.report.figures import GREY, NORMAL, TRACK_COLOUR, _coordinate_labels, _new, _png, distance_scale
+from roamstat.report.figures import GREY, NORMAL, TRACK_COLOUR, _coordinate_labels, _png, _take, distance_scale, set_log
 from roamstat.report.html import esc, fmt, table
+from roamstat.report.pairs import binned_pairs, lag_range
 
 if TYPE_CHECKING:
     from roamstat.report.sections import Fragment
@@ -129,7 +130,7 @@ def smoothed_figure(smoothed_a: pd.DataFrame, fixes_a: pd.DataFrame, masked: boo
     rx = fixes_a["x_m"].to_numpy(float) if len(fixes_a) else np.empty(0)
     ry = fixes_a["y_m"].to_numpy(float) if len(fixes_a) else np.empty(0)
     scale, unit = distance_scale(np.concatenate([sx, sy, rx, ry]))
-    fig, ax = _new(NORMAL)
+    fig, ax = _take("smoothed", NORMAL)
     ax.scatter(rx / scale, ry / scale, s=5, color=GREY, alpha=0.7, label=f"raw fixes ({rx.size})")
     ax.plot(sx / scale, sy / scale, color=TRACK_COLOUR, linewidth=0.8, label="smoothed")
     if len(grid):
@@ -164,19 +165,12 @@ def empirical_semivariance(t_s, x_m, y_m, n_bins: int = LAG_BINS, max_pairs: int
     offsets = np.arange(1, n)
     if n * (n - 1) / 2 > max_pairs:
         offsets = np.unique(np.rint(np.geomspace(1, n - 1, max(2, max_pairs // n))).astype(int))
-    lags, halves = [], []
-    for d in offsets:
-        lags.append(t[d:] - t[:-d])
-        halves.append(0.25 * ((x[d:] - x[:-d]) ** 2 + (y[d:] - y[:-d]) ** 2))
-    lag, half = np.concatenate(lags), np.concatenate(halves)
-    keep = lag > 0
-    lag, half = lag[keep], half[keep]
-    edges = np.geomspace(lag.min(), lag.max() * (1 + 1e-9), n_bins + 1)
-    which = np.clip(np.searchsorted(edges, lag, side="right") - 1, 0, n_bins - 1)
-    count = np.bincount(which, minlength=n_bins)
+    lo, hi = lag_range(t, offsets)
+    edges = np.geomspace(lo, hi * (1 + 1e-9), n_bins + 1)
+    count, lag_sum, half_sum = binned_pairs(t, x, y, offsets, edges)
     used = count > 0
-    mean_lag = np.bincount(which, lag, n_bins)[used] / count[used]
-    gamma = np.bincount(which, half, n_bins)[used] / count[used]
+    mean_lag = lag_sum[used] / count[used]
+    gamma = half_sum[used] / count[used]
     return mean_lag, gamma, count[used]
 
 
@@ -191,11 +185,10 @@ def semivariance_figure(motion) -> bytes | None:
     error_var = float(np.mean(motion.error_sd_m(fit) ** 2))
     grid = np.geomspace(lag.min(), lag.max(), 200)
     model = np.asarray(fit.semivariance(grid), dtype=float) + error_var
-    fig, ax = _new(NORMAL)
+    fig, ax = _take("semivariance", NORMAL)
     ax.scatter(lag / 3600.0, gamma, s=10, color=GREY, label="fixes (binned pairs)")
     ax.plot(grid / 3600.0, model, color=TRACK_COLOUR, linewidth=1.2, label=f"{fit.name} + location error")
-    ax.set_xscale("log")
-    ax.set_yscale("log")
+    set_log(ax)
     ax.set_xlabel("time lag (h)", fontsize=8)
     ax.set_ylabel("semi-variance per axis (m²)", fontsize=8)
     ax.tick_params(labelsize=8)

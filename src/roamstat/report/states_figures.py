@@ -26,7 +26,7 @@ import pandas as pd
 from matplotlib.collections import LineCollection
 from scipy import stats
 
-from roamstat.report.figures import NORMAL, _coordinate_labels, _new, _png, distance_scale
+from roamstat.report.figures import NORMAL, _coordinate_labels, _png, _take, distance_scale, set_log
 from roamstat.states.families import step_model, turn_model
 
 if TYPE_CHECKING:
@@ -137,7 +137,7 @@ def state_track(x_m, y_m, state, masked: bool = False) -> bytes:
     x, y, s = np.asarray(x_m, float), np.asarray(y_m, float), np.asarray(state, float)
     scale, unit = distance_scale(np.concatenate([x, y]))
     x, y = x / scale, y / scale
-    fig, ax = _new(NORMAL)
+    fig, ax = _take("state_track", NORMAL)
     legs = np.isfinite(s[:-1]) & np.isfinite(x[:-1]) & np.isfinite(x[1:]) & np.isfinite(y[:-1]) & np.isfinite(y[1:])
     ax.plot(x, y, color="#d0d0d0", linewidth=0.5, zorder=1)  # legs without a decoded step stay grey
     for k in _states_present(s[:-1][legs]):
@@ -165,7 +165,7 @@ def state_densities(step_m, turn_rad, state, params) -> bytes:
         The selected model (``step_family``, ``shape``, ``scale``, ``zero``, ``turn_family``, ``mu``, ``conc``).
     """
     steps, turns, s = np.asarray(step_m, float), np.asarray(turn_rad, float), np.asarray(state, float)
-    fig, (ax_s, ax_t) = _new(WIDE, ncols=2)
+    fig, (ax_s, ax_t) = _take("state_densities", WIDE, ncols=2)
     positive = steps[np.isfinite(steps) & (steps > 0)]
     top = float(np.quantile(positive, 0.99)) if positive.size else 1.0
     step_bins = np.linspace(0.0, top, 31)
@@ -199,7 +199,7 @@ def state_densities(step_m, turn_rad, state, params) -> bytes:
 
 def residual_qq(step_residual, turn_residual) -> bytes:
     """Normal Q–Q plots of the step and turn pseudo-residuals, side by side."""
-    fig, axes = _new(WIDE, ncols=2)
+    fig, axes = _take("state_residuals", WIDE, ncols=2)
     for ax, values, what in zip(axes, (step_residual, turn_residual), ("steps", "turns")):
         r = np.sort(np.asarray(values, float)[np.isfinite(np.asarray(values, float))])
         if r.size:
@@ -230,7 +230,7 @@ def state_budget(state, runs: pd.DataFrame, stationary_p, mean_dwell_s) -> bytes
     s = np.asarray(state, float)
     s = s[np.isfinite(s)]
     k_all = np.arange(1, len(stationary_p) + 1)
-    fig, (ax_b, ax_d) = _new(WIDE, ncols=2)
+    fig, (ax_b, ax_d) = _take("state_budget", WIDE, ncols=2)
     share = np.array([np.mean(s == k) if s.size else 0.0 for k in k_all])
     ax_b.bar(k_all, share, color=[_colour(k) for k in k_all], alpha=0.8, label="decoded")
     ax_b.plot(k_all, np.asarray(stationary_p, float), "D", color="black", markersize=5, label="stationary")
@@ -248,7 +248,7 @@ def state_budget(state, runs: pd.DataFrame, stationary_p, mean_dwell_s) -> bytes
     ax_d.set_xticks(k_all, [f"state {k}" for k in k_all])
     ax_d.set_ylabel("dwell time (h)", fontsize=8)
     if any(h.size and h.max() > 20 * max(np.median(h), 1e-9) for h in hours):
-        ax_d.set_yscale("log")
+        set_log(ax_d, x=False)
     for ax in (ax_b, ax_d):
         ax.tick_params(labelsize=8)
     ax_b.legend(fontsize=7)
