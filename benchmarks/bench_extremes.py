@@ -17,6 +17,7 @@ Ratios below 1 meet the target.  Simulated data (a generator written here), not 
 from __future__ import annotations
 
 import argparse
+import os
 import resource
 import shutil
 import subprocess
@@ -84,12 +85,14 @@ def main() -> None:
               f"{1000 * per_cpu:.2f} ms CPU per animal; ratio to the 5 ms target {per / TINY_TARGET_S:.2f} wall, "
               f"{per_cpu / TINY_TARGET_S:.2f} CPU; 50,000 animals would take about {one + 50_000 * per:.0f} s")
     if args.big:
+        load_before = os.getloadavg()[0]
         elapsed, cpu, peak = run(big_track(args.big, WORK / f"big_{args.big}.csv"), "--workers", str(args.workers))
         scaled = elapsed * BIG_TARGET_FIXES / args.big
         print(f"big: {args.big} fixes in {elapsed:.1f} s ({cpu:.1f} s CPU), peak {peak:.0f} MB; "
               "time ratio to 10 min at 2,000,000 fixes "
               f"{scaled / BIG_TARGET_S:.2f} (linear extrapolation), memory ratio to 3 GB {peak / BIG_TARGET_MB:.2f}"
-              + ("" if args.big == BIG_TARGET_FIXES else " (memory not extrapolated)"))
+              + ("" if args.big == BIG_TARGET_FIXES else " (memory not extrapolated)")
+              + f"; machine load (1-min average) {load_before:.1f} before, {os.getloadavg()[0]:.1f} after")
 
 
 if __name__ == "__main__":

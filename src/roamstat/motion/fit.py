@@ -4,6 +4,10 @@ Parameters are optimised on the log scale (L-BFGS-B, numerical gradient) from th
 small grid of starting values taken from the data (step-based diffusion, positional variance,
 median interval). Standard errors come from the inverse of a central-difference Hessian of the
 negative log-likelihood in log parameters, carried to SI units by the delta method.
+Long tracks (more than ``SCREEN_ABOVE`` fixes) choose the start and run the first optimisation
+on ``SCREEN_WINDOWS`` evenly spaced windows of ``SCREEN_FIXES`` fixes in all (the windows'
+conditional log-likelihoods summed, each window a track of its own), then polish on the whole
+track from there; the optimum and everything after it (Hessian, AICc) are the whole track's.
 AICc (Hurvich & Tsai 1989) counts the 2 (n - 1) scalar observations that the conditional
 likelihood scores and every free parameter, the fitted mean position included.
 
@@ -29,6 +33,12 @@ from .likelihood import Track, conditional_loglik, prepare_track
 
 MIN_FIXES = 10          # fewer fixes than this: no fits (too few to tell the models apart)
 HESSIAN_STEP = 1e-3     # step in log parameters for the numerical Hessian
+# tracks longer than this start on windows of SCREEN_FIXES fixes in all (judgement, no source:
+# 20,000 fixes pin the parameters down to a few per cent, so the polish on the whole track
+# needs few numerical-gradient iterations)
+SCREEN_ABOVE = 60_000
+SCREEN_FIXES = 20_000
+SCREEN_WINDOWS = 20
 BOUND_FACTOR = 1e4      # log-parameter box: start scale / BOUND_FACTOR .. start scale * BOUND_FACTOR
 UNBOUNDED = ("brownian", "ctcrw")
 # A range-resident model is eligible as the best model only when the track spans at least this
@@ -163,8 +173,17 @@ def fit_model(name: str, track: Track, error: LocationError) -> MotionFit:
         return value if np.isfinite(value) else 1e300
 
     starts = [centre + np.log(mult) for mult in itertools.product(*(_START_GRID[key] for key in free))]
-    best_start = min(starts, key=objective)
-    result = minimize(objective, best_start, method="L-BFGS-B", bounds=bounds)
+    windows = screening_windows(track)
+    if windows:
+        def screened(theta):
+            p = natural(theta)
+            value = -sum(conditional_loglik(name, p, w)[0] for w in windows)
+            return value if np.isfinite(value) else 1e300
+
+        first = minimize(screened, min(starts, key=screened), method="L-BFGS-B", bounds=bounds)
+        result = minimize(objective, first.x, method="L-BFGS-B", bounds=bounds)
+    else:
+        result = minimize(objective, min(starts, key=objective), method="L-BFGS-B", bounds=bounds)
     p = natural(result.x)
     at_edge = {key for key, value, (low, high) in zip(free, result.x, bounds)
                if min(value - low, high - value) < 1e-6}
@@ -194,6 +213,19 @@ def fit_model(name: str, track: Track, error: LocationError) -> MotionFit:
                      n_params=k, aicc=aicc(loglik, k, 2 * (track.n - 1)),
                      error_source=error.source, range_resident=resident,
                      duration_s=float(track.t_s[-1] - track.t_s[0]))
+
+
+def screening_windows(track: Track) -> list[Track]:
+    """``SCREEN_WINDOWS`` evenly spaced windows of a long track (empty up to ``SCREEN_ABOVE`` fixes)."""
+    if track.n <= SCREEN_ABOVE:
+        return []
+    width = SCREEN_FIXES // SCREEN_WINDOWS
+    out = []
+    for first in np.linspace(0, track.n - width, SCREEN_WINDOWS).astype(np.int64):
+        part = slice(first, first + width)
+        sd = None if track.error_var is None else np.sqrt(track.error_var[part])
+        out.append(prepare_track(track.t_s[part], track.xy[part, 0], track.xy[part, 1], sd))
+    return out
 
 
 def fit_motion_models(t_s, x_m, y_m, error: LocationError, models=MOTION_MODELS) -> list[MotionFit]:

@@ -33,6 +33,11 @@ class Track:
     xy: np.ndarray            # (n, 2) metres, relative to origin
     origin: np.ndarray        # (2,) the first fix
     error_var: np.ndarray | None  # (n,) known per-axis error variance, None = estimated
+    # the distinct intervals and each fix's one: a fix schedule has few, so every likelihood
+    # evaluation computes the transitions once per distinct interval, not once per fix
+    dt_unique: np.ndarray | None = None
+    dt_index: np.ndarray | None = None
+    xy1: np.ndarray | None = None  # (n, 3) positions and a column of ones (the profiled mean)
 
     @property
     def n(self) -> int:
@@ -53,7 +58,18 @@ def prepare_track(t_s, x_m, y_m, error_sd_m) -> Track:
     var = None
     if error_sd_m is not None:
         var = np.broadcast_to(np.asarray(error_sd_m, dtype=float), t.shape) ** 2
-    return Track(t, dt, xy - xy[0], xy[0].copy(), var)
+    rel = xy - xy[0]
+    dt_unique, dt_index = np.unique(dt, return_inverse=True)
+    return Track(t, dt, rel, xy[0].copy(), var, dt_unique, dt_index.ravel(),
+                 np.column_stack([rel, np.ones(t.size)]))
+
+
+def track_transitions(name: str, p: dict, track: Track) -> tuple[np.ndarray, np.ndarray]:
+    """``transition(name, p, track.dt_s)``, computed once per distinct interval."""
+    if track.dt_unique is None:
+        return transition(name, p, track.dt_s)
+    F, Q = transition(name, p, track.dt_unique)
+    return F[track.dt_index], Q[track.dt_index]
 
 
 def error_variance(track: Track, p: dict) -> np.ndarray:
@@ -76,14 +92,14 @@ def conditional_loglik(name: str, p: dict, track: Track, mean_xy=None) -> tuple[
     mean_xy : array-like of 2, optional
         Fixed mean position (absolute metres) for a range-resident model; profiled when None.
     """
-    F, Q = transition(name, p, track.dt_s)
+    F, Q = track_transitions(name, p, track)
     r = error_variance(track, p)
     resident = name in RANGE_RESIDENT
     P0 = initial_cov(name, p, r[0])
     if not resident:
         Y, mean = track.xy, np.full(2, np.nan)
     elif mean_xy is None:
-        Y = np.column_stack([track.xy, np.ones(track.n)])
+        Y = track.xy1 if track.xy1 is not None else np.column_stack([track.xy, np.ones(track.n)])
     else:
         mean = np.asarray(mean_xy, dtype=float)
         Y = track.xy - (mean - track.origin)

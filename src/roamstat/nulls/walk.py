@@ -9,15 +9,18 @@ of n independent draws.  :func:`simulate_nsd` walks ``n_reps`` replicates of
 Headings are the cumulative sum of the turns (the first turn sets the first
 heading; net displacement does not depend on the frame's orientation), and
 the position after k steps is the sum of l_j (cos Phi_j, sin Phi_j) for
-j <= k.  Only positions at the requested step indices are kept: increments are
-summed between consecutive indices (``np.add.reduceat``) and then accumulated,
-which needs no per-step position array.
+j <= k.  Only positions at the requested step indices are kept: one compiled
+pass per replicate (numba, releasing the GIL so that :mod:`roamstat.split`'s
+threads walk side by side) accumulates heading and position and records the
+squared distance at each requested index, so no per-step heading or position
+array is ever built.
 """
 
 from __future__ import annotations
 
 from typing import Callable
 
+import numba
 import numpy as np
 
 #: Steps walked per chunk (replicates x steps); ~16 MB per float64 work array.
@@ -63,19 +66,30 @@ def simulate_nsd(step_source: Source, turn_source: Source, n_steps: int, n_reps:
     if ends.size == 0 or n_reps == 0:
         return out
     m = int(ends[-1])  # steps after the last requested index are never needed
-    starts = np.concatenate(([0], ends[:-1]))
     chunk = max(1, min(n_reps, chunk_elements // m))
-    work = np.empty((chunk, m))
     for first in range(0, n_reps, chunk):
         c = min(chunk, n_reps - first)
         steps = _block(step_source(c * m, rng), c, m)
-        heading = _block(turn_source(c * m, rng), c, m)
-        np.cumsum(heading, axis=1, out=heading)
-        x = _summed(np.cos(heading, out=work[:c]), steps, starts)
-        y = _summed(np.sin(heading, out=heading), steps, starts)
-        np.square(x, out=x)
-        np.square(y, out=y)
-        out[first:first + c, positive] = x + y
+        turns = _block(turn_source(c * m, rng), c, m)
+        out[first:first + c, positive] = _walk_nsd(steps, turns, ends)
+    return out
+
+
+@numba.njit(cache=True, nogil=True)
+def _walk_nsd(steps, turns, ends):
+    """Squared distance from the start after ``ends[j]`` steps, per replicate (row)."""
+    c, m = steps.shape
+    out = np.empty((c, ends.size))
+    for r in range(c):
+        heading = x = y = 0.0
+        j = 0
+        for i in range(m):
+            heading += turns[r, i]
+            x += steps[r, i] * np.cos(heading)
+            y += steps[r, i] * np.sin(heading)
+            while j < ends.size and ends[j] == i + 1:
+                out[r, j] = x * x + y * y
+                j += 1
     return out
 
 
@@ -86,13 +100,6 @@ def _block(values, c: int, m: int) -> np.ndarray:
     if values.size != c * m:
         raise ValueError(f"a variate source returned {values.size} values, {c * m} were asked for")
     return values.reshape(c, m)
-
-
-def _summed(unit: np.ndarray, steps: np.ndarray, starts: np.ndarray) -> np.ndarray:
-    """Coordinate after each requested step count: unit vector x step, summed per span, accumulated."""
-    np.multiply(unit, steps, out=unit)
-    spans = np.add.reduceat(unit, starts, axis=1)
-    return np.cumsum(spans, axis=1, out=spans)
 
 
 class Walk:

@@ -12,6 +12,25 @@ number of starts that reached it (within ``BEST_TOLERANCE``) is reported
 (Zucchini, MacDonald & Langrock 2016, §3.4.2; Michelot, Langrock & Patterson
 2016).  States are then ordered by mean step length, state 1 slowest.
 
+Long chains (more than ``SCREEN_ABOVE`` slots) screen the starts on a
+systematic subsample: ``SCREEN_WINDOWS`` contiguous windows of the chain,
+evenly spaced, ``SCREEN_SLOTS`` slots in all, each window a fresh piece of
+chain (it starts from the initial distribution, as after a gap).  Every start
+is optimised on the subsample; the ``POLISH`` best are then optimised on the
+whole chain from there, BFGS starting from the subsample's inverse Hessian
+scaled by the ratio of observations (the information grows in proportion),
+and the best of these is the fit.  A polish ends when ``POLISH_PATIENCE``
+iterations together gained less than ``BEST_TOLERANCE`` (on a flat, over-
+parameterised surface BFGS otherwise creeps on for dozens of costly whole-chain
+evaluations), or when the gradient is within the forward difference's reach
+(:func:`_reachable_gtol`).  The count of starts reaching the best is
+then the subsample's.  The starting points are the same draws as without
+screening, and chains up to ``SCREEN_ABOVE`` slots are fitted exactly as
+before.  (Fitting candidate starts on part of the data and refining the best
+on all of it is the usual two-stage multi-start strategy, e.g. Zucchini,
+MacDonald & Langrock 2016, §3.4.2 advise many starts; the subsample
+is our choice of how to afford them on a 2,000,000-step chain.)
+
 References
 ----------
 Zucchini, W., MacDonald, I. L. & Langrock, R. (2016). Hidden Markov Models
@@ -30,8 +49,9 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import optimize
 
+from roamstat.states.chain import Chain
 from roamstat.states.families import concentration, start_step, step_model
-from roamstat.states.likelihood import Observations
+from roamstat.states.likelihood import DIFF_STEP, Observations
 from roamstat.states.params import HmmParams, Layout
 
 #: Starts whose log-likelihood is within this of the best count as reaching it (log-likelihood
@@ -51,6 +71,18 @@ GTOL = 1e-3
 
 #: Value returned where the likelihood is not finite (the optimiser needs finite numbers).
 HUGE = 1e100
+
+#: Chains longer than this (slots) screen their starts on a subsample of ``SCREEN_SLOTS`` slots
+#: in ``SCREEN_WINDOWS`` evenly spaced windows, then polish the ``POLISH`` best on the whole
+#: chain (judgement, no source: 10,000 slots pin a 3-state model's optima down well, and the
+#: windows sample the whole deployment, seasons included).
+SCREEN_ABOVE = 60_000
+SCREEN_SLOTS = 10_000
+SCREEN_WINDOWS = 20
+POLISH = 2
+#: A polish on the whole chain stops once its last ``POLISH_PATIENCE`` iterations gained less
+#: than ``BEST_TOLERANCE`` log-likelihood together (what counts as the same optimum anyway).
+POLISH_PATIENCE = 3
 
 
 @dataclass
@@ -121,6 +153,38 @@ def fit_hmm(obs: Observations, n_states: int, step_family: str, turn_family: str
     layout = Layout(n_states, step_family, turn_family, zero_mass=obs.zeros.size > 0)
     bounds = _bounds(layout, obs)
     lo, hi = np.array(bounds).T
+    screen = screening_subsample(obs)
+    results = []
+    with warnings.catch_warnings(), np.errstate(all="ignore"):
+        warnings.simplefilter("ignore", RuntimeWarning)
+        for s in range(n_starts):
+            theta0 = np.clip(layout.pack(_start(layout, obs, rng, first=s == 0)), lo, hi)
+            res = (_minimise(obs, layout, lo, hi, theta0) if screen is None
+                   else _minimise(screen, layout, lo, hi, theta0, gtol=_reachable_gtol(screen)))
+            if res.fun < HUGE:
+                results.append(res)
+        screened = np.array([r.fun for r in results])
+        if screen is not None and results:
+            # the information grows with the observations: the inverse Hessian shrinks in proportion
+            ratio = screen.n_obs / max(obs.n_obs, 1)
+            polished = [_minimise(obs, layout, lo, hi, r.x, r.hess_inv * ratio, _reachable_gtol(obs))
+                        for r in (results[i] for i in np.argsort(screened, kind="stable")[:POLISH])]
+            results = [r for r in polished if r.fun < HUGE]
+    if not results:
+        return None
+    best = min(results, key=lambda r: r.fun)
+    params = layout.unpack(np.clip(best.x, lo, hi))
+    means = np.array([step_model(step_family, a, b).mean() for a, b in zip(params.shape, params.scale)])
+    if params.zero is not None:
+        means = means * (1.0 - params.zero)
+    params = params.permuted(np.argsort(means, kind="stable"))
+    return HmmFit(params, -float(best.fun), obs.n_obs, n_starts,
+                  int(np.count_nonzero(screened <= screened.min() + BEST_TOLERANCE)), bool(best.success))
+
+
+def _minimise(obs: Observations, layout: Layout, lo: np.ndarray, hi: np.ndarray, theta0: np.ndarray,
+              hess_inv0: np.ndarray | None = None, gtol: float = GTOL):
+    """BFGS on the negative log-likelihood of ``obs``, the bounds applied by clipping."""
 
     def nll(theta):
         inside = np.clip(theta, lo, hi)
@@ -129,25 +193,61 @@ def fit_hmm(obs: Observations, n_states: int, step_family: str, turn_family: str
             return HUGE, np.zeros_like(theta)
         return -ll, np.where(inside == theta, -grad, 0.0)  # flat beyond the clipping bounds
 
-    results = []
-    with warnings.catch_warnings(), np.errstate(all="ignore"):
-        warnings.simplefilter("ignore", RuntimeWarning)
-        for s in range(n_starts):
-            theta0 = np.clip(layout.pack(_start(layout, obs, rng, first=s == 0)), lo, hi)
-            res = optimize.minimize(nll, theta0, method="BFGS", jac=True, options={"maxiter": 1000, "gtol": GTOL})
-            if res.fun < HUGE:
-                results.append(res)
-    if not results:
+    options = {"maxiter": 1000, "gtol": gtol}
+    callback = None
+    if hess_inv0 is not None:
+        callback = _stalled(POLISH_PATIENCE, BEST_TOLERANCE)
+        hess_inv0 = 0.5 * (hess_inv0 + hess_inv0.T)
+        if np.all(np.isfinite(hess_inv0)) and np.all(np.linalg.eigvalsh(hess_inv0) > 0):
+            options["hess_inv0"] = hess_inv0  # else BFGS starts from the identity, as usual
+    result = optimize.minimize(nll, theta0, method="BFGS", jac=True, options=options, callback=callback)
+    if callback is not None and callback.stalled:
+        result.success = True  # stopped by the stall rule: converged by that rule's standard
+    return result
+
+
+def _stalled(patience: int, tolerance: float):
+    """A BFGS callback that ends the run once ``patience`` iterations gained less than ``tolerance``."""
+    values: list[float] = []
+
+    def callback(intermediate_result):
+        values.append(float(intermediate_result.fun))
+        if len(values) > patience and values[-patience - 1] - values[-1] < tolerance:
+            callback.stalled = True
+            raise StopIteration
+
+    callback.stalled = False
+    return callback
+
+
+def _reachable_gtol(obs: Observations) -> float:
+    """``GTOL``, or the bias of the forward-difference gradient when that is larger.
+
+    Each observation's log-density slope carries an error of order ``DIFF_STEP``
+    (the forward difference, :meth:`Observations.loglik_and_gradient`); summed over
+    a long chain it exceeds ``GTOL``, where BFGS would only spend evaluations until
+    its line search fails.  The parameter error this leaves is of order
+    ``DIFF_STEP`` on the free scale (the information grows as fast as the bias).
+    """
+    return max(GTOL, DIFF_STEP * obs.n_obs)
+
+
+def screening_subsample(obs: Observations) -> Observations | None:
+    """The chain's screening subsample (``SCREEN_WINDOWS`` evenly spaced windows), or None when short."""
+    n = obs.n_slots
+    if n <= SCREEN_ABOVE:
         return None
-    values = np.array([r.fun for r in results])
-    best = results[int(np.argmin(values))]
-    params = layout.unpack(np.clip(best.x, lo, hi))
-    means = np.array([step_model(step_family, a, b).mean() for a, b in zip(params.shape, params.scale)])
-    if params.zero is not None:
-        means = means * (1.0 - params.zero)
-    params = params.permuted(np.argsort(means, kind="stable"))
-    return HmmFit(params, -float(best.fun), obs.n_obs, n_starts,
-                  int(np.count_nonzero(values <= values.min() + BEST_TOLERANCE)), bool(best.success))
+    width = SCREEN_SLOTS // SCREEN_WINDOWS
+    starts = np.linspace(0, n - width, SCREEN_WINDOWS).astype(np.int64)
+    take = (starts[:, None] + np.arange(width)[None, :]).ravel()
+    chain = obs.chain
+    restart = chain.restart[take].copy()
+    restart[::width] = True  # each window is a piece of chain of its own
+    none = np.zeros(0, bool)
+    sub = Chain(chain.step_m[take], chain.turn_rad[take], restart, np.zeros(0, np.int64), none, none,
+                chain.nominal_dt_s)
+    screen = Observations(sub, obs.zero_step_m)
+    return screen if screen.n_obs >= SCREEN_SLOTS // 2 else None  # mostly gaps there: fit on the whole chain
 
 
 def _bounds(layout: Layout, obs: Observations) -> list[tuple[float, float]]:
@@ -204,4 +304,4 @@ def _turn_start(obs: Observations, mean: np.ndarray, k: int) -> tuple[np.ndarray
     return mu, r
 
 
-__all__ = ["BEST_TOLERANCE", "HmmFit", "fit_hmm"]
+__all__ = ["BEST_TOLERANCE", "HmmFit", "fit_hmm", "screening_subsample"]

@@ -35,6 +35,7 @@ class Observations:
 
     def __init__(self, chain: Chain, zero_step_m: float = 0.0):
         self.chain = chain
+        self.zero_step_m = zero_step_m
         obs = np.isfinite(chain.step_m)
         self.pos = np.flatnonzero(obs & (chain.step_m > zero_step_m))
         self.zeros = np.flatnonzero(obs & (chain.step_m <= zero_step_m))
