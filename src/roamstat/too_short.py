@@ -114,28 +114,68 @@ def _no_rows():
 
 
 def _null_rows(task) -> list[dict]:
-    """null_tests.csv rows: each null's observed curve summary and why it cannot test the track."""
+    """null_tests.csv rows: each null's observed-track summary and why it cannot test the track.
+
+    What ``compare.test_animal`` writes for a track below ``cfg.min_steps_test``, computed on the
+    animal's arrays (selecting its rows as frames, as the tests do, costs more than everything else).
+    """
     from roamstat import compare
-    from roamstat.track import duration_s
+    from roamstat.track import NAT_NS, as_ns, duration_s
 
     cfg, fixes_a = task.cfg, task.fixes
     nominal_dt_s = duration_s(cfg.resample, "--resample") if getattr(cfg, "resample", None) else task.nominal_dt_s
     n_obs_steps = int(np.count_nonzero(np.isfinite(compare._column(task.steps, "step_m"))))
-    table, discrete = [], None
+    projected = {"time", "x_m", "y_m"} <= set(fixes_a.columns)
+    track = None
+    if projected:
+        ns, x, y = as_ns(fixes_a["time"]), compare._column(fixes_a, "x_m"), compare._column(fixes_a, "y_m")
+        track = (ns, x, y, (ns != NAT_NS) & np.isfinite(x) & np.isfinite(y))
+    in_time = _in_time_summary(track, rows.observed_mask(fixes_a), cfg.min_steps_test)
+    discrete = _discrete_summary(track, rows.analysed_mask(fixes_a), nominal_dt_s, n_obs_steps, cfg.min_steps_test)
+    table = []
     for name in cfg.nulls:
-        if _in_time(name):
-            obs, why = compare._observed_in_time(rows.observed(fixes_a), cfg)
-        else:
-            if discrete is None:
-                track = rows.analysed(fixes_a, [c for c in ("time", "x_m", "y_m") if c in fixes_a.columns])
-                discrete = compare._observed(track, n_obs_steps, nominal_dt_s, cfg)
-            obs, why = discrete
-        assert why, "too_short.is_too_short let through an animal a null could test"
+        obs, why = in_time if _in_time(name) else discrete
         row = {"animal_id": task.animal_id, **{c: math.nan for c in compare.ROW_COLUMNS}}
         row.update(null_model=name, n_steps=obs.get("n_steps", 0), observed_net_m=obs.get("net_m", math.nan),
                    note=compare._join(why, obs.get("note", "")))
         table.append(row)
     return table
+
+
+def _dropped_note(n_dropped: int) -> str:
+    return f"{n_dropped} fixes without time or coordinates ignored" if n_dropped else ""
+
+
+def _in_time_summary(track, rows_mask: np.ndarray, min_steps: int) -> tuple[dict, str]:
+    """``compare._observed_in_time`` of the rows ``rows_mask`` (observed fixes) of a short track."""
+    if track is None or rows_mask.sum() < 2:
+        return {}, "fewer than two projected fixes"
+    n_good = int(np.count_nonzero(track[3] & rows_mask))
+    n_steps = max(n_good - 1, 0)
+    return {"n_steps": n_steps, "note": _dropped_note(int(rows_mask.sum()) - n_good)}, (
+        f"track too short to test: {n_steps} steps between observed fixes, fewer than the {min_steps} needed")
+
+
+def _discrete_summary(track, rows_mask: np.ndarray, nominal_dt_s: float, n_obs_steps: int,
+                      min_steps: int) -> tuple[dict, str]:
+    """``compare._observed`` of the rows ``rows_mask`` (the analysed track) of a short track."""
+    if not (math.isfinite(nominal_dt_s) and nominal_dt_s > 0):
+        return {}, "no nominal fix interval (fewer than two fixes in time)"
+    if track is None or rows_mask.sum() < 2:
+        return {}, "fewer than two projected fixes"
+    ns, x, y, good = track
+    good = good & rows_mask
+    n_dropped = int(rows_mask.sum()) - int(np.count_nonzero(good))
+    obs = {"n_steps": 0, "net_m": math.nan, "note": _dropped_note(n_dropped)}
+    if good.any():  # the observed curve's end: NSD of the last fix in time (compare.observed_curve)
+        t_s = (ns[good] - ns[good].min()) / 1e9
+        order = np.argsort(t_s, kind="stable")
+        xs, ys = x[good][order], y[good][order]
+        obs["n_steps"] = int(np.rint(t_s[order][-1] / nominal_dt_s))
+        obs["net_m"] = float(math.sqrt((xs[-1] - xs[0]) ** 2 + (ys[-1] - ys[0]) ** 2))
+    if int(rows_mask.sum()) - n_dropped < 2:
+        return obs, "fewer than two fixes with time and coordinates"
+    return obs, f"track too short to test: {n_obs_steps} steps, fewer than the {min_steps} needed"
 
 
 @cache
