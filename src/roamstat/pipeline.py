@@ -282,7 +282,9 @@ def _blocks(table: pd.DataFrame):
         table, codes = table.iloc[order], codes[order]
     starts = np.searchsorted(codes, np.arange(len(ids) + 1))
     for code, aid in enumerate(ids):  # missing ids (code -1) are dropped, as groupby does
-        yield aid, table.iloc[starts[code]:starts[code + 1]].reset_index(drop=True)
+        block = table.iloc[starts[code]:starts[code + 1]]
+        block.index = pd.RangeIndex(len(block))  # a fresh index on the new slice: cheaper than reset_index's copy
+        yield aid, block
 
 
 def analyse(loaded: Loaded, stages: tuple, cfg: Config, clock: StageClock | None = None,

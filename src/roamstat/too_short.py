@@ -57,7 +57,7 @@ def short_animal(task) -> AnimalResult:
     no motion fits are kept: the stages would have fitted nothing.
     """
     cfg, aid = task.cfg, task.animal_id
-    result = AnimalResult(animal_id=aid)
+    result = AnimalResult(animal_id=aid, fits=[], null_tests=[], ranges=[])  # rows, not empty tables: cheaper
     if "motion" in task.stages and cfg.mask_locations:  # masked empty layouts: the stage's own code (cheap enough)
         from roamstat.pipeline import _motion_stage
 
@@ -171,8 +171,9 @@ def _discrete_summary(track, rows_mask: np.ndarray, nominal_dt_s: float, n_obs_s
         t_s = (ns[good] - ns[good].min()) / 1e9
         order = np.argsort(t_s, kind="stable")
         xs, ys = x[good][order], y[good][order]
+        nsd = (xs - xs[0]) ** 2 + (ys - ys[0]) ** 2  # on arrays, as the curve does: scalar powers round differently
         obs["n_steps"] = int(np.rint(t_s[order][-1] / nominal_dt_s))
-        obs["net_m"] = float(math.sqrt((xs[-1] - xs[0]) ** 2 + (ys[-1] - ys[0]) ** 2))
+        obs["net_m"] = float(math.sqrt(nsd[-1]))
     if int(rows_mask.sum()) - n_dropped < 2:
         return obs, "fewer than two fixes with time and coordinates"
     return obs, f"track too short to test: {n_obs_steps} steps, fewer than the {min_steps} needed"
