@@ -53,12 +53,15 @@ def short_animal(task) -> AnimalResult:
     """:func:`roamstat.pipeline.analyse_animal` of an animal for which :func:`is_too_short` holds.
 
     Tables hold plain rows (dicts with ``animal_id`` first); the deployment
-    builds one table from all animals' rows.  No behavioural-state result and
-    no motion fits are kept: the stages would have fitted nothing.
+    builds one table from all animals' rows.  No behavioural-state result is
+    kept (the stage would have fitted nothing), nor, without a report, the
+    motion stage's unfitted track.
     """
     cfg, aid = task.cfg, task.animal_id
     result = AnimalResult(animal_id=aid, fits=[], null_tests=[], ranges=[])  # rows, not empty tables: cheaper
-    if "motion" in task.stages and cfg.mask_locations:  # masked empty layouts: the stage's own code (cheap enough)
+    # the stage's own code where its output is more than rows: masked empty layouts, and the report's
+    # semivariance figure of the unfitted motion (a report costs far more per animal anyway)
+    if "motion" in task.stages and (cfg.mask_locations or "report" in task.stages):
         from roamstat.pipeline import _motion_stage
 
         _motion_stage(task, rows.located(task.fixes), result)
