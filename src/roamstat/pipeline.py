@@ -159,6 +159,10 @@ class AnimalTask:
 
 def analyse_animal(task: AnimalTask) -> AnimalResult:
     """Models, behavioural states, null tests and ranges of one animal (rows per :mod:`roamstat.rows`)."""
+    from roamstat.too_short import is_too_short, short_animal
+
+    if is_too_short(task):  # every stage would only say so: its rows directly
+        return short_animal(task)
     cfg, aid = task.cfg, task.animal_id
     result = AnimalResult(animal_id=aid)
     # motion and ranges see the same located fixes: selected and sorted once
@@ -278,7 +282,9 @@ def _blocks(table: pd.DataFrame):
         table, codes = table.iloc[order], codes[order]
     starts = np.searchsorted(codes, np.arange(len(ids) + 1))
     for code, aid in enumerate(ids):  # missing ids (code -1) are dropped, as groupby does
-        yield aid, table.iloc[starts[code]:starts[code + 1]].reset_index(drop=True)
+        block = table.iloc[starts[code]:starts[code + 1]]
+        block.index = pd.RangeIndex(len(block))  # a fresh index on the new slice: cheaper than reset_index's copy
+        yield aid, block
 
 
 def analyse(loaded: Loaded, stages: tuple, cfg: Config, clock: StageClock | None = None,
@@ -365,8 +371,23 @@ def _import_stage_modules(stages) -> None:
             importlib.import_module(module)
 
 
-def concat_tables(frames: list[pd.DataFrame], empty_columns=()) -> pd.DataFrame:
-    """Non-empty frames stacked; else the first frame's (empty) layout, or the given columns without one."""
+def concat_tables(parts: list, empty_columns=()) -> pd.DataFrame:
+    """Non-empty parts stacked; else the first part's (empty) layout, or the given columns without one.
+
+    A part is a frame or a list of plain rows (dicts, as :mod:`roamstat.too_short` gives): each run of
+    consecutive row lists becomes one frame, so thousands of short animals cost one table construction.
+    """
+    frames, pending = [], []
+    for part in parts:
+        if isinstance(part, list):
+            pending += part
+            continue
+        if pending:
+            frames.append(pd.DataFrame(pending))
+            pending = []
+        frames.append(part)
+    if pending:
+        frames.append(pd.DataFrame(pending))
     filled = [f for f in frames if len(f)]
     if filled:
         return pd.concat(filled, ignore_index=True)

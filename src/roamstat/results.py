@@ -32,7 +32,9 @@ def empty_table(columns=()) -> pd.DataFrame:
 class AnimalResult:
     """Everything computed for one animal.
 
-    Tables hold rows for this animal only, with an ``animal_id`` column.
+    Tables hold rows for this animal only, with an ``animal_id`` column; ``fits``, ``null_tests``
+    and ``ranges`` may instead be plain rows (dicts, ``animal_id`` first) for an animal too short
+    to analyse (:mod:`roamstat.too_short`).
     ``null_curves`` maps a null-model name to the curve dict returned by
     ``compare.test_animal``; ``residency_curve`` and ``range_extras`` come from
     ``ranges``; ``states`` (rows of states.csv and state_models.csv, the
@@ -41,10 +43,10 @@ class AnimalResult:
     """
 
     animal_id: str
-    fits: pd.DataFrame = field(default_factory=empty_table)
-    null_tests: pd.DataFrame = field(default_factory=empty_table)
+    fits: pd.DataFrame | list[dict] = field(default_factory=empty_table)
+    null_tests: pd.DataFrame | list[dict] = field(default_factory=empty_table)
     residency: dict = field(default_factory=dict)
-    ranges: pd.DataFrame = field(default_factory=empty_table)
+    ranges: pd.DataFrame | list[dict] = field(default_factory=empty_table)
     features: list[dict] = field(default_factory=list)
     fitted: AnimalFits | None = None  # for the report's density overlays
     null_curves: dict[str, dict] = field(default_factory=dict)

@@ -69,14 +69,20 @@ def n_observed(fixes: pd.DataFrame) -> int:
     return int(observed_mask(fixes).sum())
 
 
-def located(fixes_a: pd.DataFrame) -> pd.DataFrame:
-    """Observed fixes with finite position and time, in time order (residency and ranges)."""
+def located_mask(fixes_a: pd.DataFrame) -> np.ndarray:
+    """True for observed fixes with finite position and time (the rows :func:`located` keeps)."""
     missing = [c for c in ("animal_id", "time", "lat", "lon", "x_m", "y_m") if c not in fixes_a.columns]
     if missing:
         raise RoamstatError(f"fixes table lacks column(s) {', '.join(missing)}; prepare fixes with track.prepare_fixes first")
     keep = observed_mask(fixes_a) & fixes_a["time"].notna().to_numpy()
     for column in ("lat", "lon", "x_m", "y_m"):
         keep &= np.isfinite(fixes_a[column].to_numpy(float))
+    return keep
+
+
+def located(fixes_a: pd.DataFrame) -> pd.DataFrame:
+    """Observed fixes with finite position and time, in time order (residency and ranges)."""
+    keep = located_mask(fixes_a)
     kept = fixes_a if keep.all() else fixes_a[keep]
     if not kept["time"].is_monotonic_increasing:  # sorting is the costly part for short tracks
         kept = kept.sort_values("time", kind="stable")

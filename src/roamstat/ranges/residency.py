@@ -356,6 +356,21 @@ def choose_pattern(aics: dict, fits: dict, t, x, y):
 
 # --- one animal ---------------------------------------------------------------------
 
+def _undetermined(n_fixes: int) -> dict:
+    """The row of an animal with ``n_fixes`` located fixes before any curve is fitted."""
+    row = {"pattern": "undetermined", "pattern_reason": "", "n_fixes": int(n_fixes)}
+    row.update({f"aic_{m}": math.nan for m in MODELS})
+    row.update({"delta_aic": math.nan, "params": "{}", "ranges_resident": math.nan, "ranges_motion": "", "note": ""})
+    return row
+
+
+def too_few_row(n_fixes: int) -> dict:
+    """:func:`residency_animal`'s row for an animal with ``n_fixes`` < ``MIN_FIXES`` located fixes."""
+    row = _undetermined(n_fixes)
+    row["note"] = row["pattern_reason"] = f"only {n_fixes} observed fixes; residency needs at least {MIN_FIXES}"
+    return row
+
+
 def residency_animal(fixes_a: pd.DataFrame, cfg=None):
     """Classify one animal's NSD-through-time pattern.
 
@@ -385,12 +400,9 @@ def residency_animal(fixes_a: pd.DataFrame, cfg=None):
     Bunnefeld, N. et al. (2011). J. Anim. Ecol. 80, 466-476.
     """
     obs = located(fixes_a)
-    row = {"pattern": "undetermined", "pattern_reason": "", "n_fixes": int(len(obs))}
-    row.update({f"aic_{m}": math.nan for m in MODELS})
-    row.update({"delta_aic": math.nan, "params": "{}", "ranges_resident": math.nan, "ranges_motion": "", "note": ""})
     if len(obs) < MIN_FIXES:
-        row["note"] = row["pattern_reason"] = f"only {len(obs)} observed fixes; residency needs at least {MIN_FIXES}"
-        return row, {}
+        return too_few_row(len(obs)), {}
+    row = _undetermined(len(obs))
     t, y = nsd_series(obs)
     if t[-1] <= 0:
         row["note"] = row["pattern_reason"] = "all fixes share one time; residency needs a track through time"
