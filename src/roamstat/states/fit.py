@@ -45,6 +45,7 @@ from __future__ import annotations
 import math
 import warnings
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from scipy import optimize
@@ -193,7 +194,7 @@ def _minimise(obs: Observations, layout: Layout, lo: np.ndarray, hi: np.ndarray,
             return HUGE, np.zeros_like(theta)
         return -ll, np.where(inside == theta, -grad, 0.0)  # flat beyond the clipping bounds
 
-    options = {"maxiter": 1000, "gtol": gtol}
+    options: dict[str, Any] = {"maxiter": 1000, "gtol": gtol}
     callback = None
     if hess_inv0 is not None:
         callback = _stalled(POLISH_PATIENCE, BEST_TOLERANCE)
@@ -206,18 +207,19 @@ def _minimise(obs: Observations, layout: Layout, lo: np.ndarray, hi: np.ndarray,
     return result
 
 
-def _stalled(patience: int, tolerance: float):
+class _stalled:
     """A BFGS callback that ends the run once ``patience`` iterations gained less than ``tolerance``."""
-    values: list[float] = []
 
-    def callback(intermediate_result):
-        values.append(float(intermediate_result.fun))
-        if len(values) > patience and values[-patience - 1] - values[-1] < tolerance:
-            callback.stalled = True
+    def __init__(self, patience: int, tolerance: float) -> None:
+        self.patience, self.tolerance = patience, tolerance
+        self.values: list[float] = []
+        self.stalled = False
+
+    def __call__(self, intermediate_result) -> None:
+        self.values.append(float(intermediate_result.fun))
+        if len(self.values) > self.patience and self.values[-self.patience - 1] - self.values[-1] < self.tolerance:
+            self.stalled = True
             raise StopIteration
-
-    callback.stalled = False
-    return callback
 
 
 def _reachable_gtol(obs: Observations) -> float:
