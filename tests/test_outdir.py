@@ -96,9 +96,14 @@ def test_run_stopped_at_random_moments_leaves_one_true_run_and_no_workers(sig, s
     assert cli("clean", small, "--out", out, "--quiet")[0] == 0
     rng = np.random.default_rng(int(sig))
     stopped = []
-    for delay in (rng.uniform(2.0, 3.0), rng.uniform(0.5, 6.0)):  # reading and work; then anywhere up to the swap
-        proc = subprocess.Popen([sys.executable, "-m", "roamstat", "run", str(small), "--out", str(out), *FAST,
-                                 "--workers", "2"], stderr=subprocess.PIPE, text=True, preexec_fn=_default_sigint)
+    # First mid-run (just after the staging folder appears, in a run made long by 999 replicates, so a
+    # fast machine cannot finish first); then anywhere from start-up to the swap.
+    for mid_run, delay, replicates in ((True, rng.uniform(0.2, 1.0), "999"), (False, rng.uniform(0.5, 6.0), "19")):
+        proc = subprocess.Popen([sys.executable, "-m", "roamstat", "run", str(small), "--out", str(out), "--quiet",
+                                 "--replicates", replicates, "--workers", "2"], stderr=subprocess.PIPE, text=True,
+                                preexec_fn=_default_sigint)
+        if mid_run:
+            assert _appears(outs, ".o.roamstat-new-", proc), "the run never created its staging folder"
         time.sleep(delay)
         workers = children(proc.pid)
         proc.send_signal(sig)
@@ -116,6 +121,16 @@ def test_run_stopped_at_random_moments_leaves_one_true_run_and_no_workers(sig, s
         assert one_true_run(out)["command"] in {"clean", "run"}
         assert sorted(p.name for p in outs.iterdir()) == ["o"]  # no staging, old run or lock left beside it
     assert stopped[0]  # the first stop comes mid-run, so the test cannot pass by the run simply finishing
+
+
+def _appears(folder: Path, prefix: str, proc: subprocess.Popen, within_s: float = 60.0) -> bool:
+    """Wait until an entry named ``prefix…`` appears in ``folder`` (while ``proc`` runs)."""
+    deadline = time.monotonic() + within_s
+    while time.monotonic() < deadline and proc.poll() is None:
+        if any(p.name.startswith(prefix) for p in folder.iterdir()):
+            return True
+        time.sleep(0.02)
+    return False
 
 
 def _default_sigint() -> None:
