@@ -57,6 +57,21 @@ ENVELOPE = (0.025, 0.975)  # pointwise and endpoint central 95 % interval
 #: Share of fixes within FIT_INTERVAL_TOLERANCE of the nominal schedule that a step-based null needs (missed
 #: fixes keep the schedule, irregular fix times do not; judgement, checked by tests/test_nulls_field.py).
 MIN_ON_SCHEDULE = 0.8
+# Notes of a track the nulls cannot test (also written by roamstat.too_short, which must match them).
+NO_NOMINAL = "no nominal fix interval (fewer than two fixes in time)"
+FEW_PROJECTED = "fewer than two projected fixes"
+FEW_LOCATED = "fewer than two fixes with time and coordinates"
+
+
+def dropped_note(n_dropped: int) -> str:
+    """The note on fixes the observed curve left out."""
+    return f"{n_dropped} fixes without time or coordinates ignored" if n_dropped else ""
+
+
+def too_short_note(n_steps: int, min_steps: int, between_fixes: bool = False) -> str:
+    """Why a track with ``n_steps`` steps is not tested (``between_fixes``: counted between observed fixes)."""
+    counted = "steps between observed fixes" if between_fixes else "steps"
+    return f"track too short to test: {n_steps} {counted}, fewer than the {min_steps} needed"
 
 ROW_COLUMNS = ["null_model", "n_steps", "observed_net_m", "null_median_m", "null_q025_m", "null_q975_m",
                "p_farther", "p_closer", "p_value", "p_curve", "expected_nsd_m2", "simulated_mean_nsd_m2", "note"]
@@ -342,15 +357,15 @@ def _step_null(name: str, fits, steps_a: pd.DataFrame, step_m: np.ndarray, min_s
 def _observed(fixes_a, n_obs_steps, nominal_dt_s, cfg) -> tuple[dict, str]:
     """The observed curve on the nominal step indices and, if a discrete null cannot test it, why."""
     if not (isinstance(nominal_dt_s, (int, float)) and math.isfinite(nominal_dt_s) and nominal_dt_s > 0):
-        return {}, "no nominal fix interval (fewer than two fixes in time)"
+        return {}, NO_NOMINAL
     if not {"time", "x_m", "y_m"} <= set(fixes_a.columns) or len(fixes_a) < 2:
-        return {}, "fewer than two projected fixes"
+        return {}, FEW_PROJECTED
     obs = observed_curve(fixes_a, float(nominal_dt_s))
-    obs["note"] = f"{obs['n_dropped']} fixes without time or coordinates ignored" if obs["n_dropped"] else ""
+    obs["note"] = dropped_note(obs["n_dropped"])
     if len(fixes_a) - obs["n_dropped"] < 2:
-        return obs, "fewer than two fixes with time and coordinates"
+        return obs, FEW_LOCATED
     if n_obs_steps < cfg.min_steps_test:
-        return obs, f"track too short to test: {n_obs_steps} steps, fewer than the {cfg.min_steps_test} needed"
+        return obs, too_short_note(n_obs_steps, cfg.min_steps_test)
     obs["step"] = obs["idx"]
     if obs["n_steps"] < 1:
         return obs, "the fixes span less than one nominal interval"
@@ -363,13 +378,12 @@ def _observed(fixes_a, n_obs_steps, nominal_dt_s, cfg) -> tuple[dict, str]:
 def _observed_in_time(fixes_a, cfg) -> tuple[dict, str]:
     """The observed curve at the fixes' own times and, if the continuous-time null cannot test it, why."""
     if not {"time", "x_m", "y_m"} <= set(fixes_a.columns) or len(fixes_a) < 2:
-        return {}, "fewer than two projected fixes"
+        return {}, FEW_PROJECTED
     t_s, x, y, n_dropped, _ = _clean_track(fixes_a)
-    note = f"{n_dropped} fixes without time or coordinates ignored" if n_dropped else ""
+    note = dropped_note(n_dropped)
     if t_s.size < cfg.min_steps_test + 1:
-        return {"n_steps": max(t_s.size - 1, 0), "note": note}, (
-            f"track too short to test: {max(t_s.size - 1, 0)} steps between observed fixes, fewer than the "
-            f"{cfg.min_steps_test} needed")
+        n_steps = max(t_s.size - 1, 0)
+        return {"n_steps": n_steps, "note": note}, too_short_note(n_steps, cfg.min_steps_test, between_fixes=True)
     if t_s[-1] <= 0:
         return {"n_steps": t_s.size - 1, "note": note}, "all fixes at one time"
     keep = _thin(t_s.size, MAX_CURVE_POINTS)

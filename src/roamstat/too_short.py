@@ -24,6 +24,7 @@ from functools import cache
 import numpy as np
 
 from roamstat import rows
+from roamstat.compare import FEW_LOCATED, FEW_PROJECTED, NO_NOMINAL, dropped_note, too_short_note
 from roamstat.results import AnimalResult
 
 
@@ -145,31 +146,27 @@ def _null_rows(task) -> list[dict]:
     return table
 
 
-def _dropped_note(n_dropped: int) -> str:
-    return f"{n_dropped} fixes without time or coordinates ignored" if n_dropped else ""
-
-
 def _in_time_summary(track, rows_mask: np.ndarray, min_steps: int) -> tuple[dict, str]:
     """``compare._observed_in_time`` of the rows ``rows_mask`` (observed fixes) of a short track."""
     if track is None or rows_mask.sum() < 2:
-        return {}, "fewer than two projected fixes"
+        return {}, FEW_PROJECTED
     n_good = int(np.count_nonzero(track[3] & rows_mask))
     n_steps = max(n_good - 1, 0)
-    return {"n_steps": n_steps, "note": _dropped_note(int(rows_mask.sum()) - n_good)}, (
-        f"track too short to test: {n_steps} steps between observed fixes, fewer than the {min_steps} needed")
+    return ({"n_steps": n_steps, "note": dropped_note(int(rows_mask.sum()) - n_good)},
+            too_short_note(n_steps, min_steps, between_fixes=True))
 
 
 def _discrete_summary(track, rows_mask: np.ndarray, nominal_dt_s: float, n_obs_steps: int,
                       min_steps: int) -> tuple[dict, str]:
     """``compare._observed`` of the rows ``rows_mask`` (the analysed track) of a short track."""
     if not (math.isfinite(nominal_dt_s) and nominal_dt_s > 0):
-        return {}, "no nominal fix interval (fewer than two fixes in time)"
+        return {}, NO_NOMINAL
     if track is None or rows_mask.sum() < 2:
-        return {}, "fewer than two projected fixes"
+        return {}, FEW_PROJECTED
     ns, x, y, good = track
     good = good & rows_mask
     n_dropped = int(rows_mask.sum()) - int(np.count_nonzero(good))
-    obs = {"n_steps": 0, "net_m": math.nan, "note": _dropped_note(n_dropped)}
+    obs = {"n_steps": 0, "net_m": math.nan, "note": dropped_note(n_dropped)}
     if good.any():  # the observed curve's end: NSD of the last fix in time (compare.observed_curve)
         t_s = (ns[good] - ns[good].min()) / 1e9
         order = np.argsort(t_s, kind="stable")
@@ -178,8 +175,8 @@ def _discrete_summary(track, rows_mask: np.ndarray, nominal_dt_s: float, n_obs_s
         obs["n_steps"] = int(np.rint(t_s[order][-1] / nominal_dt_s))
         obs["net_m"] = float(math.sqrt(nsd[-1]))
     if int(rows_mask.sum()) - n_dropped < 2:
-        return obs, "fewer than two fixes with time and coordinates"
-    return obs, f"track too short to test: {n_obs_steps} steps, fewer than the {min_steps} needed"
+        return obs, FEW_LOCATED
+    return obs, too_short_note(n_obs_steps, min_steps)
 
 
 @cache
