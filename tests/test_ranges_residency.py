@@ -144,3 +144,18 @@ def test_random_walk_spread_is_one_for_brownian_motion_and_small_for_a_settled_r
     days = (track["time"] - track["time"].iloc[0]).dt.total_seconds().to_numpy() / 86400
     q = random_walk_spread(days, track["x_m"].to_numpy(), track["y_m"].to_numpy(), np.ones(len(days), bool))
     assert 0.5 * 3 / 80 < q < 2 * 3 / 80
+
+
+@pytest.mark.parametrize("seed", SEEDS[:3])
+def test_a_steady_directed_move_out_of_a_tight_range_is_a_disperser(seed):
+    # Simulated, not real: a tight range (sd 500 m, attraction time 12 h, hourly fixes) for 30 days,
+    # a move at constant speed, 30 km in 8 days, then a new range for 20 days. NSD is distance
+    # squared, so a sigmoid fitted to it rises late: at 2 phi before its midpoint the animal was already
+    # a third of the way, and those fixes made the start look unsettled (spread 0.3+ of a random walk's;
+    # common practice, no source: the 98 % margin of PART_MARGIN_PHI is derived in residency.py).
+    def centre(t):
+        return 30000.0 * np.clip((t - 30.0) / 8.0, 0.0, 1.0)
+
+    fixes = shifted_range_track(centre, 58, 1, 500, 0.5, np.random.default_rng(seed))
+    row, _ = residency_animal(fixes, Config())
+    assert row["pattern"] == "disperser", row["note"]

@@ -67,6 +67,11 @@ MIN_N_EFFECTIVE = 10.0
 # A range part must spread less than this share of a random walk's spread over the same time: about a stay
 # of 10 attraction times (3 tau / L); a random walk's window falls below it with probability of a few % (judgement).
 SETTLED_MAX = 0.3
+# A range part starts this many phi from a transition midpoint.  The sigmoid is fitted to NSD, the square
+# of distance: at 2 phi the NSD is 12 % of the way, but the animal is already sqrt(0.12) = 35 % of the way
+# in distance, so a directed move's first days fall into the "settled" start.  At 4 phi the NSD is within
+# 1.8 % and the animal within 13 % of the way (derived here; judgement, no source).
+PART_MARGIN_PHI = 4.0
 DAY_S = 86400.0
 
 
@@ -202,8 +207,8 @@ def ranges_apart(model: str, p, t, x, y):
     Autocorrelated wandering inside one range can be fitted by a sigmoid (the
     residuals of NSD are far from independent, so AIC alone over-rewards the
     flexible curves).  A fit counts only when the centroids of the fixes
-    before departure and at the far end (more than 2 phi from each transition
-    midpoint, i.e. past 88 % of the transition) are farther apart than the sum
+    before departure and at the far end (more than ``PART_MARGIN_PHI`` = 4 phi from each
+    transition midpoint, i.e. past 98 % of the NSD change) are farther apart than the sum
     of the two ranges' RMS radii; a migrant's return must be followed by at
     least 5 fixes, and a mixed migrant's final range must also be apart, in
     the same sense, from both the start and the far range (else it is a
@@ -235,14 +240,15 @@ def ranges_apart(model: str, p, t, x, y):
 
 
 def range_parts(model: str, p, t) -> dict:
-    """Masks of the fixes in each range of a two-range fit, more than 2 phi from every transition midpoint.
+    """Masks of the fixes in each range of a two-range fit, ``PART_MARGIN_PHI`` phi from every transition midpoint.
 
     ``start`` and ``far range`` for a disperser, plus ``return range`` for the migrants.
     """
-    parts = {"start": t < p[1] - 2 * p[2], "far range": t > p[1] + 2 * p[2]}
+    m = PART_MARGIN_PHI
+    parts = {"start": t < p[1] - m * p[2], "far range": t > p[1] + m * p[2]}
     if model != "disperser":
-        parts["far range"] &= t < p[3] - 2 * p[4]
-        parts["return range"] = t > p[3] + 2 * p[4]
+        parts["far range"] &= t < p[3] - m * p[4]
+        parts["return range"] = t > p[3] + m * p[4]
     return parts
 
 
