@@ -80,6 +80,13 @@ def forward_backward(logp, restart, delta, gamma):
     beta : ndarray (S, K)
         Backward probabilities, rescaled per slot (only ratios across k matter).
     """
+    ll, alpha, prior, beta, _ = _forward_backward(logp, restart, delta, gamma)
+    return ll, alpha, prior, beta
+
+
+@numba.njit(cache=True)
+def _forward_backward(logp, restart, delta, gamma):
+    """:func:`forward_backward`'s four values, then ``dens`` (S, K) = exp(logp - max over k of logp)."""
     n, k = logp.shape
     alpha = np.empty((n, k))
     prior = np.empty((n, k))
@@ -106,7 +113,7 @@ def forward_backward(logp, restart, delta, gamma):
             alpha[t, j] = p * dens[t, j]
             total += alpha[t, j]
         if total <= 0.0 or not np.isfinite(total):
-            return -np.inf, alpha, prior, beta
+            return -np.inf, alpha, prior, beta, dens
         ll += np.log(total)
         for j in range(k):
             alpha[t, j] /= total
@@ -124,7 +131,7 @@ def forward_backward(logp, restart, delta, gamma):
             total += b
         for i in range(k):
             beta[t, i] /= total
-    return ll, alpha, prior, beta
+    return ll, alpha, prior, beta, dens
 
 
 @numba.njit(cache=True)
@@ -177,7 +184,7 @@ def posterior_counts(logp, restart, delta, gamma):
     n, k = logp.shape
     counts = np.zeros((k, k))
     local = np.empty((n, k))
-    ll, alpha, prior, beta = forward_backward(logp, restart, delta, gamma)
+    ll, alpha, prior, beta, dens = _forward_backward(logp, restart, delta, gamma)
     if not np.isfinite(ll):
         return ll, local, counts
     xi = np.empty((k, k))
@@ -190,13 +197,10 @@ def posterior_counts(logp, restart, delta, gamma):
             local[t, j] /= total
         if restart[t]:
             continue
-        m = logp[t, 0]
-        for j in range(1, k):
-            m = max(m, logp[t, j])
         total = 0.0
         for i in range(k):
             for j in range(k):
-                xi[i, j] = alpha[t - 1, i] * gamma[i, j] * np.exp(logp[t, j] - m) * beta[t, j]
+                xi[i, j] = alpha[t - 1, i] * gamma[i, j] * dens[t, j] * beta[t, j]
                 total += xi[i, j]
         for i in range(k):
             for j in range(k):
