@@ -76,7 +76,7 @@ def turn_constants(family: str, conc: np.ndarray) -> tuple[np.ndarray, np.ndarra
 
 @numba.njit(cache=True)
 def slot_terms(step_kind, x, log_x, turn_ok, turn, cos_t, sin_t, weibull, shape, scale, step_norm, step_slope,
-               log_zero, log_moving, cauchy, mu, conc, turn_norm, turn_slope, gradient):
+               has_zero, log_zero, log_moving, cauchy, mu, conc, turn_norm, turn_slope, gradient):
     """Log densities of every slot's step and turn under every state, and their derivatives.
 
     Parameters
@@ -93,6 +93,8 @@ def slot_terms(step_kind, x, log_x, turn_ok, turn, cos_t, sin_t, weibull, shape,
         Weibull steps (else gamma).
     shape, scale, step_norm, step_slope : ndarray (K,)
         Step parameters and :func:`step_constants`.
+    has_zero : bool
+        Whether the states have a zero mass z_k.
     log_zero, log_moving : ndarray (K,)
         log z_k and log(1 - z_k) (both 0 without a zero mass).
     cauchy : bool
@@ -106,15 +108,17 @@ def slot_terms(step_kind, x, log_x, turn_ok, turn, cos_t, sin_t, weibull, shape,
     -------
     step_lp, turn_lp : ndarray (S, K)
         Log densities (0 where missing).
-    deriv : ndarray (4, S, K)
+    deriv : ndarray (5, S, K)
         d step_lp / d log shape, d step_lp / d log scale, d turn_lp / d mu,
-        d turn_lp / d free concentration (0 where missing); shape (4, 0, K)
-        when ``gradient`` is False.
+        d turn_lp / d free concentration, d step_lp / d logit z (1 - z at a
+        zero step, -z at a positive one; 0 without a zero mass), all 0 where
+        missing; shape (5, 0, K) when ``gradient`` is False.
     """
     n, k = x.size, shape.size
     step_lp = np.zeros((n, k))
     turn_lp = np.zeros((n, k))
-    deriv = np.zeros((4, n if gradient else 0, k))
+    deriv = np.zeros((5, n if gradient else 0, k))
+    zero = np.exp(log_zero) if has_zero else np.zeros(k)
     log_scale = np.log(scale)
     cos_mu, sin_mu = np.cos(mu), np.sin(mu)
     for t in range(n):
@@ -122,7 +126,11 @@ def slot_terms(step_kind, x, log_x, turn_ok, turn, cos_t, sin_t, weibull, shape,
         for j in range(k):
             if kind == ZERO:
                 step_lp[t, j] = log_zero[j]
+                if gradient and has_zero:
+                    deriv[4, t, j] = 1.0 - zero[j]
             elif kind == POSITIVE:
+                if gradient and has_zero:
+                    deriv[4, t, j] = -zero[j]
                 a = shape[j]
                 if weibull:
                     lz = log_x[t] - log_scale[j]

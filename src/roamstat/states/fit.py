@@ -33,6 +33,8 @@ is our choice of how to afford them on a 2,000,000-step chain.)
 
 References
 ----------
+Gill, P. E., Murray, W. & Wright, M. H. (1981). Practical Optimization.
+Academic Press.
 Zucchini, W., MacDonald, I. L. & Langrock, R. (2016). Hidden Markov Models
 for Time Series: An Introduction Using R, 2nd ed. CRC Press.
 Michelot, T., Langrock, R. & Patterson, T. A. (2016). Statistical modelling

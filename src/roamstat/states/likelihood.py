@@ -23,7 +23,7 @@ import numpy as np
 from roamstat.states.chain import Chain
 from roamstat.states.densities import MISSING, POSITIVE, ZERO, slot_terms, step_constants, turn_constants
 from roamstat.states.params import HmmParams, Layout
-from roamstat.states.recursions import forward_loglik, posterior_counts
+from roamstat.states.recursions import forward_loglik, posterior_sums
 
 
 class Observations:
@@ -70,7 +70,7 @@ class Observations:
             log_zero, log_moving = np.log(p.zero), np.log1p(-p.zero)
         return slot_terms(self._step_kind, self._x, self._log_x, self._turn_ok, self._turn, self._cos_t,
                           self._sin_t, p.step_family == "weibull", p.shape, p.scale, step_norm, step_slope,
-                          log_zero, log_moving, p.turn_family == "wrapped_cauchy", p.mu, p.conc, turn_norm,
+                          p.zero is not None, log_zero, log_moving, p.turn_family == "wrapped_cauchy", p.mu, p.conc, turn_norm,
                           turn_slope, gradient)
 
     def loglik(self, p: HmmParams) -> float:
@@ -85,10 +85,10 @@ class Observations:
     def loglik_and_gradient(self, layout: Layout, theta: np.ndarray) -> tuple[float, np.ndarray]:
         """Log-likelihood and its exact gradient with respect to the free parameters.
 
-        The HMM part comes from Fisher's identity (:func:`posterior_counts`):
+        The HMM part comes from Fisher's identity (:func:`posterior_sums`):
         each state's log-density derivatives (:mod:`roamstat.states.densities`,
-        analytic) weighted by the local state probabilities, and the expected
-        transition counts for the transition matrix.
+        analytic; the zero mass's included) weighted by the local state
+        probabilities, and the expected transition counts for the transition matrix.
         """
         p = layout.unpack(theta)
         k = p.n_states
@@ -98,19 +98,17 @@ class Observations:
         if not np.all(np.isfinite(logp)):
             return -np.inf, np.zeros_like(theta)
         delta = p.delta
-        ll, local, counts = posterior_counts(logp, self.chain.restart, delta, p.gamma)
+        ll, sums, counts, first = posterior_sums(logp, self.chain.restart, delta, p.gamma, deriv)
         if not np.isfinite(ll):
             return -np.inf, np.zeros_like(theta)
         grad = np.zeros_like(theta)
-        # shape, scale, mu and concentration blocks, in the layout's order
-        grad[:4 * k] = np.einsum("dsk,sk->dk", deriv, local).ravel()
+        grad[:4 * k] = sums[:4].ravel()  # shape, scale, mu and concentration blocks, in the layout's order
         off = ~np.eye(k, dtype=bool)
         eta_grad = counts - p.gamma * counts.sum(axis=1, keepdims=True)
-        eta_grad += _stationary_slope(p.gamma, delta, local[self.chain.restart].sum(axis=0) / delta)
+        eta_grad += _stationary_slope(p.gamma, delta, first / delta)
         grad[4 * k:4 * k + k * (k - 1)] = eta_grad[off]
         if p.zero is not None:
-            grad[4 * k + k * (k - 1):] = (np.sum(local[self.zeros], axis=0) * (1.0 - p.zero)
-                                         - np.sum(local[self.pos], axis=0) * p.zero)
+            grad[4 * k + k * (k - 1):] = sums[4]
         return float(ll), grad
 
 
