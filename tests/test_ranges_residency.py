@@ -159,3 +159,22 @@ def test_a_steady_directed_move_out_of_a_tight_range_is_a_disperser(seed):
     fixes = shifted_range_track(centre, 58, 1, 500, 0.5, np.random.default_rng(seed))
     row, _ = residency_animal(fixes, Config())
     assert row["pattern"] == "disperser", row["note"]
+
+
+@pytest.mark.parametrize("model", ["resident", "disperser", "migrant", "mixed_migrant"])
+def test_search_jacobian_equals_central_differences(model):
+    # reference: central differences of the NSD curves (Bunnefeld et al. 2011 forms) in the search coordinates
+    from roamstat.ranges.residency import _natural, _starts_and_bounds, predict, search_jacobian
+
+    rng = np.random.default_rng(11)
+    t = np.linspace(0.0, 130.0, 300)
+    y = 900.0 / (1.0 + np.exp(-(t - 40.0) / 2.0)) + rng.normal(0, 20.0, t.size)  # a dispersal-like NSD
+    starts, (lo, hi) = _starts_and_bounds(model, t, y, 0.25)
+    for q in starts[:: max(len(starts) // 4, 1)]:
+        q = np.clip(q * rng.uniform(0.8, 1.2, q.size), lo + 1e-6, hi - 1e-6)
+        got = search_jacobian(model, q, t, 130.0, 0.25)
+        step = 1e-6 * np.maximum(np.abs(q), 1e-3)
+        numeric = np.column_stack([
+            (predict(model, _natural(model, q + e, 130.0, 0.25), t) - predict(model, _natural(model, q - e, 130.0, 0.25), t))
+            / (2 * h) for e, h in zip(np.diag(step), step)])
+        np.testing.assert_allclose(got, numeric, rtol=1e-5, atol=1e-6 * np.abs(numeric).max())

@@ -13,12 +13,12 @@ import itertools
 import numpy as np
 import pandas as pd
 import pytest
-from scipy import optimize, stats
+from scipy import stats
 
 from roamstat.errors import RoamstatError
 from roamstat.states.chain import build_chain
 from roamstat.states.decode import decode
-from roamstat.states.families import check_families, step_logpdf, turn_logpdf
+from roamstat.states.families import check_families
 from roamstat.states.likelihood import Observations
 from roamstat.states.params import Layout, stationary
 
@@ -80,36 +80,6 @@ def test_forward_equals_sum_over_all_state_sequences(k):
     dec = decode(obs, layout.unpack(theta))
     np.testing.assert_allclose(dec.local, marg, atol=1e-12)
     np.testing.assert_array_equal(dec.state, path)
-
-
-def test_gradient_matches_numerical_differences():
-    # reference: scipy.optimize.approx_fprime of the forward log-likelihood
-    rng = np.random.default_rng(8)
-    obs = Observations(build_chain(_tiny_steps(rng)))
-    for turn in ("von_mises", "wrapped_cauchy"):
-        for k in (1, 2, 3):
-            layout = Layout(k, "weibull", turn, zero_mass=True)
-            theta = rng.normal(0.0, 0.5, layout.size)
-            theta[k:2 * k] = np.log(rng.uniform(50.0, 300.0, k))
-            ll, grad = obs.loglik_and_gradient(layout, theta)
-            numeric = optimize.approx_fprime(theta, lambda v, layout=layout: obs.loglik(layout.unpack(v)), 1e-7)
-            np.testing.assert_allclose(grad, numeric, rtol=1e-4, atol=1e-4)
-
-
-def test_fast_densities_equal_scipy_public_logpdf():
-    # scipy.stats' public logpdf is the reference for the broadcast standardised densities
-    x = np.array([0.5, 10.0, 250.0, 3000.0])
-    theta = np.array([-3.0, -0.2, 1.5, 3.1])
-    for fam, dist in (("gamma", stats.gamma), ("weibull", stats.weibull_min)):
-        got = step_logpdf(fam, x, np.array([0.7, 2.5]), np.array([40.0, 400.0]))
-        want = np.column_stack([dist.logpdf(x, 0.7, scale=40.0), dist.logpdf(x, 2.5, scale=400.0)])
-        np.testing.assert_allclose(got, want, rtol=1e-12)
-    got = turn_logpdf("von_mises", theta, np.array([np.pi, 0.3]), np.array([0.8, 6.0]))
-    want = np.column_stack([stats.vonmises.logpdf(theta, 0.8, loc=np.pi), stats.vonmises.logpdf(theta, 6.0, loc=0.3)])
-    np.testing.assert_allclose(got, want, rtol=1e-12)
-    got = turn_logpdf("wrapped_cauchy", theta, np.array([np.pi, 0.3]), np.array([0.2, 0.9]))
-    want = np.column_stack([stats.wrapcauchy.logpdf(np.mod(theta - m, 2 * np.pi), r) for m, r in ((np.pi, 0.2), (0.3, 0.9))])
-    np.testing.assert_allclose(got, want, rtol=1e-12)
 
 
 def test_stationary_distribution_is_left_eigenvector():

@@ -155,6 +155,43 @@ def _natural(model: str, q, span: float, dt_days: float):
     return np.array(natural if model == "migrant" else natural + [q[5] * d])
 
 
+def search_jacobian(model: str, q, t, span: float, dt_days: float) -> np.ndarray:
+    """Derivatives of :func:`predict` at times ``t`` with respect to the search vector ``q``, shape (n, len(q)).
+
+    With s = expit((t - theta) / phi) and s' = s (1 - s): d s / d theta = -s' / phi and
+    d s / d phi = -s' (t - theta) / phi²; the resident form A (1 - exp(-t / tau)) has
+    d / dA = 1 - exp(-t / tau) and d / dtau = -A exp(-t / tau) t / tau².  The migrants
+    are searched as (d, theta1, phi1, u, phi2[, r]) with theta2 = theta1 + gap + u
+    max(span - theta1 - gap, 0) and d2 = r d (r = 1 for the migrant), hence the chain
+    rule through theta2 (:func:`_natural`).
+    """
+    t = np.asarray(t, float)
+    if model == "resident":
+        a, tau = q
+        decay = np.exp(-t / tau)
+        return np.column_stack([-np.expm1(-t / tau), -a * decay * t / tau**2])
+    if model == "disperser":
+        d, theta, phi = q
+        s = _sigmoid(t, theta, phi)
+        slope = d * s * (1.0 - s) / phi
+        return np.column_stack([s, -slope, -slope * (t - theta) / phi])
+    if model not in ("migrant", "mixed_migrant"):
+        raise ValueError(f"no search Jacobian for residency model {model!r}")
+    d, theta1, phi1, u, phi2 = q[:5]
+    r = q[5] if model == "mixed_migrant" else 1.0
+    gap = _gap_lo(span, dt_days)
+    room = span - theta1 - gap
+    theta2 = theta1 + gap + u * max(room, 0.0)
+    s1, s2 = _sigmoid(t, theta1, phi1), _sigmoid(t, theta2, phi2)
+    slope1, slope2 = d * s1 * (1.0 - s1) / phi1, r * d * s2 * (1.0 - s2) / phi2  # d f / d (-theta) per sigmoid
+    dtheta2_dtheta1 = 1.0 - u if room > 0 else 1.0
+    cols = [s1 - r * s2, -slope1 + slope2 * dtheta2_dtheta1, -slope1 * (t - theta1) / phi1,
+            slope2 * max(room, 0.0), slope2 * (t - theta2) / phi2]
+    if model == "mixed_migrant":
+        cols.append(-d * s2)
+    return np.column_stack(cols)
+
+
 def fit_model(model: str, t, y, dt_days: float):
     """Least-squares fit of one curve: (parameters, RSS) or (None, nan) if no start converged."""
     if model == "sedentary":
@@ -186,6 +223,7 @@ def _solve(model, start, t, y, span, dt_days, bounds, scale, max_nfev=400):
     """(search vector, RSS, converged) from one start, or None when the solver fails."""
     try:
         res = least_squares(lambda q: predict(model, _natural(model, q, span, dt_days), t) - y, start,
+                            jac=lambda q: search_jacobian(model, q, t, span, dt_days),
                             bounds=bounds, x_scale=scale, method="trf", max_nfev=max_nfev)
     except (ValueError, FloatingPointError):
         return None

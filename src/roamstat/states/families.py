@@ -1,16 +1,12 @@
 """State-dependent step and turn families of the hidden Markov model.
 
-The densities are the project's own families: step lengths through the scipy
-distributions of :data:`roamstat.models.steps.FAMILIES` (gamma, Weibull),
-turning angles through the scipy distributions behind
+The densities are the project's own families: step lengths as in
+:data:`roamstat.models.steps.FAMILIES` (gamma, Weibull), turning angles as in
 :class:`~roamstat.models.turns.VonMisesTurns` and
-:class:`~roamstat.models.turns.WrappedCauchyTurns`.  Inside the likelihood the
-density of all K states is evaluated in one broadcast call of the
-distribution's standardised log density (scipy's ``_logpdf``, with scipy's
-location-scale rule ``log f(x / scale) - log scale``); the public
-``logpdf`` re-checks its arguments on every call, which costs more than the
-whole forward recursion.  Fitted states are handed on as ordinary fitted
-models of :mod:`roamstat.models.base` (``sample``, ``cdf``, ``mean`` ...).
+:class:`~roamstat.models.turns.WrappedCauchyTurns`.  Inside the likelihood
+they are evaluated, with their derivatives, by the compiled pass of
+:mod:`roamstat.states.densities`.  Fitted states are handed on as ordinary
+fitted models of :mod:`roamstat.models.base` (``sample``, ``cdf``, ``mean`` ...).
 
 Each family maps its natural parameters to an unconstrained vector and back:
 log for shapes, scales and concentrations, logit for the wrapped Cauchy's rho,
@@ -29,11 +25,11 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
-from scipy import special, stats
+from scipy import special
 
 from roamstat.errors import RoamstatError
 from roamstat.models.steps import FAMILIES, ScipyStepModel
-from roamstat.models.turns import TWO_PI, VonMisesTurns, WrappedCauchyTurns
+from roamstat.models.turns import VonMisesTurns, WrappedCauchyTurns
 
 #: Step families offered for states (two-parameter, location 0).
 STEP_FAMILIES = ("gamma", "weibull")
@@ -41,12 +37,10 @@ STEP_FAMILIES = ("gamma", "weibull")
 
 @dataclass(frozen=True)
 class TurnFamily:
-    """A turning-angle family: scipy distribution, how angles enter it, its protocol model."""
+    """A turning-angle family: parameter names, free coordinates of the concentration, protocol model."""
 
     name: str
     keys: tuple[str, str]  # (mean direction, concentration)
-    dist: stats.rv_continuous
-    centre: Callable[[np.ndarray], np.ndarray]  # theta - mu -> the distribution's own argument
     to_free: Callable[[np.ndarray], np.ndarray]  # concentration -> unconstrained
     from_free: Callable[[np.ndarray], np.ndarray]
     model: Callable  # (mu, concentration, n, loglik) -> TurnModel
@@ -55,11 +49,8 @@ class TurnFamily:
 TURN_FAMILIES = {
     f.name: f
     for f in (
-        # scipy's von Mises log density is kappa * (cos(d) - 1) + const: periodic, no wrap needed
-        TurnFamily("von_mises", ("mu", "kappa"), stats.vonmises, lambda d: d, np.log, np.exp, VonMisesTurns),
-        # scipy's wrapcauchy lives on [0, 2 pi) centred at 0 (see models/turns.py)
-        TurnFamily("wrapped_cauchy", ("mu", "rho"), stats.wrapcauchy, lambda d: np.mod(d, TWO_PI),
-                   special.logit, special.expit, WrappedCauchyTurns),
+        TurnFamily("von_mises", ("mu", "kappa"), np.log, np.exp, VonMisesTurns),
+        TurnFamily("wrapped_cauchy", ("mu", "rho"), special.logit, special.expit, WrappedCauchyTurns),
     )
 }
 
@@ -70,21 +61,6 @@ def check_families(step_family: str, turn_family: str) -> None:
         raise RoamstatError(f"state step family {step_family!r} is not offered; use one of {', '.join(STEP_FAMILIES)}")
     if turn_family not in TURN_FAMILIES:
         raise RoamstatError(f"state turn family {turn_family!r} is not offered; use one of {', '.join(TURN_FAMILIES)}")
-
-
-def step_logpdf(family: str, x: np.ndarray, shape: np.ndarray, scale: np.ndarray) -> np.ndarray:
-    """Log density of each step under each state, shape ``(len(x), K)``.
-
-    ``x`` must be positive; the caller masks zero and missing steps.
-    """
-    dist = FAMILIES[family].dist
-    return dist._logpdf(x[:, None] / scale, shape) - np.log(scale)
-
-
-def turn_logpdf(family: str, theta: np.ndarray, mu: np.ndarray, conc: np.ndarray) -> np.ndarray:
-    """Log density of each turning angle under each state, shape ``(len(theta), K)``."""
-    f = TURN_FAMILIES[family]
-    return f.dist._logpdf(f.centre(theta[:, None] - mu), conc)
 
 
 def step_model(family: str, shape: float, scale: float, n: int = 0) -> ScipyStepModel:
@@ -125,4 +101,4 @@ def concentration(family: str, r: np.ndarray) -> np.ndarray:
 
 
 __all__ = ["STEP_FAMILIES", "TURN_FAMILIES", "TurnFamily", "check_families", "concentration", "start_step",
-           "step_logpdf", "step_model", "turn_logpdf", "turn_model"]
+           "step_model", "turn_model"]

@@ -21,13 +21,9 @@ from __future__ import annotations
 import numpy as np
 
 from roamstat.states.chain import Chain
-from roamstat.states.families import TURN_FAMILIES, step_logpdf, turn_logpdf
+from roamstat.states.densities import MISSING, POSITIVE, ZERO, slot_terms, step_constants, turn_constants
 from roamstat.states.params import HmmParams, Layout
-from roamstat.states.recursions import forward_loglik, posterior_counts
-
-#: Forward-difference step for derivatives of log densities on the free scale (relative error
-#: of the gradient ~1e-6, ample for the optimiser's stopping rule).
-DIFF_STEP = 1e-6
+from roamstat.states.recursions import forward_loglik, posterior_sums
 
 
 class Observations:
@@ -43,6 +39,16 @@ class Observations:
         self.step_pos = chain.step_m[self.pos]
         self.turn_obs = chain.turn_rad[self.turns]
         self.n_slots = chain.n_slots
+        # per-slot inputs of the compiled pass (densities.slot_terms), computed once
+        self._step_kind = np.full(self.n_slots, MISSING, np.int8)
+        self._step_kind[self.pos] = POSITIVE
+        self._step_kind[self.zeros] = ZERO
+        self._x = np.ones(self.n_slots)
+        self._x[self.pos] = self.step_pos
+        self._log_x = np.log(self._x)
+        self._turn_ok = np.isfinite(chain.turn_rad)
+        self._turn = np.where(self._turn_ok, chain.turn_rad, 0.0)
+        self._cos_t, self._sin_t = np.cos(self._turn), np.sin(self._turn)
 
     @property
     def n_obs(self) -> int:
@@ -51,20 +57,21 @@ class Observations:
 
     def log_densities(self, p: HmmParams) -> tuple[np.ndarray, np.ndarray]:
         """Step and turn log densities per slot and state, each shape (S, K), 0 where missing."""
-        return self._assemble(p, step_logpdf(p.step_family, self.step_pos, p.shape, p.scale),
-                              turn_logpdf(p.turn_family, self.turn_obs, p.mu, p.conc))
-
-    def _assemble(self, p: HmmParams, pos_lp: np.ndarray, turn_obs_lp: np.ndarray):
-        """Full (S, K) step and turn log densities from those at the observed values."""
-        k = p.n_states
-        step_lp = np.zeros((self.n_slots, k))
-        turn_lp = np.zeros((self.n_slots, k))
-        if p.zero is not None:
-            pos_lp = pos_lp + np.log1p(-p.zero)
-            step_lp[self.zeros] = np.log(p.zero)
-        step_lp[self.pos] = pos_lp
-        turn_lp[self.turns] = turn_obs_lp
+        step_lp, turn_lp, _ = self._terms(p, gradient=False)
         return step_lp, turn_lp
+
+    def _terms(self, p: HmmParams, gradient: bool) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """:func:`~roamstat.states.densities.slot_terms` of this chain under ``p``."""
+        step_norm, step_slope = step_constants(p.step_family, p.shape, p.scale)
+        turn_norm, turn_slope = turn_constants(p.turn_family, p.conc)
+        if p.zero is None:
+            log_zero = log_moving = np.zeros(p.n_states)
+        else:
+            log_zero, log_moving = np.log(p.zero), np.log1p(-p.zero)
+        return slot_terms(self._step_kind, self._x, self._log_x, self._turn_ok, self._turn, self._cos_t,
+                          self._sin_t, p.step_family == "weibull", p.shape, p.scale, step_norm, step_slope,
+                          p.zero is not None, log_zero, log_moving, p.turn_family == "wrapped_cauchy", p.mu, p.conc, turn_norm,
+                          turn_slope, gradient)
 
     def loglik(self, p: HmmParams) -> float:
         """Log-likelihood by the scaled forward algorithm."""
@@ -76,48 +83,32 @@ class Observations:
         return float(forward_loglik(logp, self.chain.restart, p.delta, p.gamma))
 
     def loglik_and_gradient(self, layout: Layout, theta: np.ndarray) -> tuple[float, np.ndarray]:
-        """Log-likelihood and its gradient with respect to the free parameters.
+        """Log-likelihood and its exact gradient with respect to the free parameters.
 
-        The HMM part is exact (Fisher's identity, :func:`posterior_counts`);
-        the derivative of each state's log density with respect to its own
-        free parameters is a forward difference of the family's density
-        (the density and both perturbations in one broadcast call per family).
+        The HMM part comes from Fisher's identity (:func:`posterior_sums`):
+        each state's log-density derivatives (:mod:`roamstat.states.densities`,
+        analytic; the zero mass's included) weighted by the local state
+        probabilities, and the expected transition counts for the transition matrix.
         """
         p = layout.unpack(theta)
         k = p.n_states
-        # one broadcast call per family: the density and its two one-sided perturbations
-        up = np.exp(DIFF_STEP)
-        shape = np.concatenate([p.shape, p.shape * up, p.shape])
-        scale = np.concatenate([p.scale, p.scale, p.scale * up])
-        lp = step_logpdf(p.step_family, self.step_pos, shape, scale)
-        d_shape, d_scale = (lp[:, k:2 * k] - lp[:, :k]) / DIFF_STEP, (lp[:, 2 * k:] - lp[:, :k]) / DIFF_STEP
-        conc_free = theta[3 * k:4 * k]
-        conc = np.concatenate([p.conc, p.conc, TURN_FAMILIES[layout.turn_family].from_free(conc_free + DIFF_STEP)])
-        tl = turn_logpdf(p.turn_family, self.turn_obs, np.concatenate([p.mu, p.mu + DIFF_STEP, p.mu]), conc)
-        d_mu, d_conc = (tl[:, k:2 * k] - tl[:, :k]) / DIFF_STEP, (tl[:, 2 * k:] - tl[:, :k]) / DIFF_STEP
-        step_lp, turn_lp = self._assemble(p, lp[:, :k], tl[:, :k])
+        step_lp, turn_lp, deriv = self._terms(p, gradient=True)
         with np.errstate(all="ignore"):
             logp = step_lp + turn_lp
         if not np.all(np.isfinite(logp)):
             return -np.inf, np.zeros_like(theta)
         delta = p.delta
-        ll, local, counts = posterior_counts(logp, self.chain.restart, delta, p.gamma)
+        ll, sums, counts, first = posterior_sums(logp, self.chain.restart, delta, p.gamma, deriv)
         if not np.isfinite(ll):
             return -np.inf, np.zeros_like(theta)
         grad = np.zeros_like(theta)
-        w = local[self.pos]
-        grad[:k] = np.sum(w * d_shape, axis=0)
-        grad[k:2 * k] = np.sum(w * d_scale, axis=0)
-        wt = local[self.turns]
-        grad[2 * k:3 * k] = np.sum(wt * d_mu, axis=0)
-        grad[3 * k:4 * k] = np.sum(wt * d_conc, axis=0)
+        grad[:4 * k] = sums[:4].ravel()  # shape, scale, mu and concentration blocks, in the layout's order
         off = ~np.eye(k, dtype=bool)
         eta_grad = counts - p.gamma * counts.sum(axis=1, keepdims=True)
-        eta_grad += _stationary_slope(p.gamma, delta, local[self.chain.restart].sum(axis=0) / delta)
+        eta_grad += _stationary_slope(p.gamma, delta, first / delta)
         grad[4 * k:4 * k + k * (k - 1)] = eta_grad[off]
         if p.zero is not None:
-            grad[4 * k + k * (k - 1):] = (np.sum(local[self.zeros], axis=0) * (1.0 - p.zero)
-                                         - np.sum(w, axis=0) * p.zero)
+            grad[4 * k + k * (k - 1):] = sums[4]
         return float(ll), grad
 
 

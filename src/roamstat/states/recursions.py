@@ -80,6 +80,13 @@ def forward_backward(logp, restart, delta, gamma):
     beta : ndarray (S, K)
         Backward probabilities, rescaled per slot (only ratios across k matter).
     """
+    ll, alpha, prior, beta, _ = _forward_backward(logp, restart, delta, gamma)
+    return ll, alpha, prior, beta
+
+
+@numba.njit(cache=True)
+def _forward_backward(logp, restart, delta, gamma):
+    """:func:`forward_backward`'s four values, then ``dens`` (S, K) = exp(logp - max over k of logp)."""
     n, k = logp.shape
     alpha = np.empty((n, k))
     prior = np.empty((n, k))
@@ -106,7 +113,7 @@ def forward_backward(logp, restart, delta, gamma):
             alpha[t, j] = p * dens[t, j]
             total += alpha[t, j]
         if total <= 0.0 or not np.isfinite(total):
-            return -np.inf, alpha, prior, beta
+            return -np.inf, alpha, prior, beta, dens
         ll += np.log(total)
         for j in range(k):
             alpha[t, j] /= total
@@ -124,7 +131,7 @@ def forward_backward(logp, restart, delta, gamma):
             total += b
         for i in range(k):
             beta[t, i] /= total
-    return ll, alpha, prior, beta
+    return ll, alpha, prior, beta, dens
 
 
 @numba.njit(cache=True)
@@ -158,47 +165,61 @@ def viterbi(logp, restart, delta, gamma):
 
 
 @numba.njit(cache=True)
-def posterior_counts(logp, restart, delta, gamma):
-    """Log-likelihood, local state probabilities and expected transition counts.
+def posterior_sums(logp, restart, delta, gamma, deriv):
+    """Log-likelihood and the posterior expectations its exact gradient needs.
 
-    These give the exact gradient of the log-likelihood by Fisher's identity:
-    d log L / d theta = sum_t sum_k Pr(C_t = k | x) d log f_k(x_t) / d theta, and
-    d log L / d gamma_ij = N_ij / gamma_ij with N_ij = sum_t Pr(C_{t-1} = i, C_t = j | x)
-    (Zucchini, MacDonald & Langrock 2016, §4.2 for the expectations).
+    By Fisher's identity d log L / d theta = sum_t sum_k Pr(C_t = k | x) d log f_k(x_t) / d theta,
+    and d log L / d gamma_ij = N_ij / gamma_ij with N_ij = sum_t Pr(C_{t-1} = i, C_t = j | x)
+    (Zucchini, MacDonald & Langrock 2016, §4.2 for the expectations).  The local
+    probabilities Pr(C_t = k | x) are summed against ``deriv`` as they are formed,
+    so no (S, K) table of them is kept.
+
+    Parameters
+    ----------
+    logp, restart, delta, gamma
+        As :func:`forward_loglik`.
+    deriv : ndarray (D, S, K)
+        Per slot and state, D derivatives of the slot's log density.
 
     Returns
     -------
     loglik : float
-    local : ndarray (S, K)
-        Pr(C_t = k | all observations of the segment).
+    sums : ndarray (D, K)
+        sum_t Pr(C_t = k | x) deriv[d, t, k].
     counts : ndarray (K, K)
         Expected numbers of i -> j transitions within segments.
+    first : ndarray (K,)
+        sum over segment starts of Pr(C_t = k | x).
     """
     n, k = logp.shape
+    n_deriv = deriv.shape[0]
     counts = np.zeros((k, k))
-    local = np.empty((n, k))
-    ll, alpha, prior, beta = forward_backward(logp, restart, delta, gamma)
+    sums = np.zeros((n_deriv, k))
+    first = np.zeros(k)
+    ll, alpha, prior, beta, dens = _forward_backward(logp, restart, delta, gamma)
     if not np.isfinite(ll):
-        return ll, local, counts
+        return ll, sums, counts, first
+    local = np.empty(k)
     xi = np.empty((k, k))
     for t in range(n):
         total = 0.0
         for j in range(k):
-            local[t, j] = alpha[t, j] * beta[t, j]
-            total += local[t, j]
+            local[j] = alpha[t, j] * beta[t, j]
+            total += local[j]
         for j in range(k):
-            local[t, j] /= total
+            local[j] /= total
+            for d in range(n_deriv):
+                sums[d, j] += local[j] * deriv[d, t, j]
         if restart[t]:
+            for j in range(k):
+                first[j] += local[j]
             continue
-        m = logp[t, 0]
-        for j in range(1, k):
-            m = max(m, logp[t, j])
         total = 0.0
         for i in range(k):
             for j in range(k):
-                xi[i, j] = alpha[t - 1, i] * gamma[i, j] * np.exp(logp[t, j] - m) * beta[t, j]
+                xi[i, j] = alpha[t - 1, i] * gamma[i, j] * dens[t, j] * beta[t, j]
                 total += xi[i, j]
         for i in range(k):
             for j in range(k):
                 counts[i, j] += xi[i, j] / total
-    return ll, local, counts
+    return ll, sums, counts, first
