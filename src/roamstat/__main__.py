@@ -1,5 +1,5 @@
 import sys
 
-from roamstat.cli import main
+from roamstat.entry import main
 
 sys.exit(main())
