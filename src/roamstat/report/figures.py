@@ -13,7 +13,7 @@ import math
 import threading
 
 import numpy as np
-from matplotlib.backends.backend_agg import FigureCanvasAgg
+from roamstat.report.agg_text import TextStampCanvas
 from matplotlib.dates import AutoDateLocator, ConciseDateFormatter, date2num
 from matplotlib.figure import Figure
 from matplotlib.ticker import LogFormatter, MaxNLocator
@@ -32,7 +32,7 @@ START_COLOUR, END_COLOUR, TRACK_COLOUR, GREY = "#1a7f37", "#c62828", "#1f5fa8", 
 
 def _new(size, margins=None, **kwargs):
     fig = Figure(figsize=size, dpi=DPI)
-    FigureCanvasAgg(fig)
+    TextStampCanvas(fig)
     m = {**MARGINS_IN, **(margins or {})}
     width, height = size
     fig.subplots_adjust(left=m["left"] / width, right=1 - m["right"] / width, bottom=m["bottom"] / height,
