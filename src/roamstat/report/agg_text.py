@@ -19,7 +19,7 @@ from functools import lru_cache
 
 import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg, RendererAgg, get_hinting_flag
-from matplotlib.font_manager import fontManager, get_font
+from matplotlib.font_manager import FontProperties, fontManager, get_font
 
 #: Distinct texts kept per process; tick labels of a thousand animals repeat, so few distinct ones.
 STAMPS_KEPT = 4096
@@ -52,13 +52,25 @@ def _height_metrics(font_key, size_pt: float, dpi: float):
     return None, None, None
 
 
+def _font_key(prop) -> tuple:
+    """The font files of ``prop`` (size aside): matplotlib's lookup re-reads its settings on every call."""
+    return _font_files(tuple(prop.get_family()), prop.get_style(), prop.get_variant(), prop.get_weight(),
+                       prop.get_stretch(), prop.get_file())
+
+
+@lru_cache(maxsize=64)
+def _font_files(family, style, variant, weight, stretch, file) -> tuple:
+    prop = FontProperties(family=list(family), style=style, variant=variant, weight=weight, stretch=stretch, fname=file)
+    return tuple(fontManager._find_fonts_by_props(prop))
+
+
 class TextStampRenderer(RendererAgg):
     """:class:`RendererAgg` drawing plain text from :func:`_stamp`'s per-process bitmaps."""
 
     def draw_text(self, gc, x, y, s, prop, angle, ismath=False, mtext=None):
         if ismath:
             return super().draw_text(gc, x, y, s, prop, angle, ismath, mtext)
-        key = tuple(fontManager._find_fonts_by_props(prop))
+        key = _font_key(prop)
         bitmap, x_off, y_off, descent = _stamp(s, key, prop.get_size_in_points(), self.dpi, gc.get_antialiased())
         # As the whole-string path placed it: offsets of the bitmap, descent turned with the text.
         x = round(x + x_off + descent * math.sin(math.radians(angle)))
@@ -66,7 +78,7 @@ class TextStampRenderer(RendererAgg):
         self._renderer.draw_text_image(bitmap, x, y + 1, angle, gc)
 
     def _get_font_height_metrics(self, prop):
-        return _height_metrics(tuple(fontManager._find_fonts_by_props(prop)), prop.get_size_in_points(), self.dpi)
+        return _height_metrics(_font_key(prop), prop.get_size_in_points(), self.dpi)
 
 
 class TextStampCanvas(FigureCanvasAgg):
