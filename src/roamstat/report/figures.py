@@ -18,6 +18,7 @@ from roamstat.report.agg_text import TextStampCanvas
 from matplotlib.dates import AutoDateLocator, ConciseDateFormatter, date2num
 from matplotlib.figure import Figure
 from matplotlib.ticker import LogFormatter, MaxNLocator
+from matplotlib.transforms import ScaledTranslation
 from matplotlib.patches import PathPatch
 from matplotlib.path import Path as MplPath
 from PIL import Image
@@ -47,12 +48,26 @@ def _new(size, margins=None, **kwargs):
     m = {**MARGINS_IN, **(margins or {})}
     width, height = size
     fig.subplots_adjust(left=m["left"] / width, right=1 - m["right"] / width, bottom=m["bottom"] / height,
-                        top=1 - m["top"] / height, hspace=0.45)
+                        top=1 - m["top"] / height, hspace=0.45, wspace=0.32)
     axes = fig.subplots(**kwargs)
     for ax in np.ravel(axes):
         if ax.name != "polar":
             ax.locator_params(nbins=TICK_BINS)
+            _fixed_label_positions(fig, ax)
     return fig, axes
+
+
+#: Axis labels at fixed distances (inches) from the axes, clear of tick labels of up to 6 characters
+#: at 8 pt: placed automatically, each label measured every tick label of its axis and of the axes
+#: sharing it on every draw, about a tenth of the drawing time (profiled on the sample deployment).
+X_LABEL_BELOW_IN, Y_LABEL_LEFT_IN = 0.24, 0.56
+
+
+def _fixed_label_positions(fig, ax) -> None:
+    below = ScaledTranslation(0.0, -X_LABEL_BELOW_IN, fig.dpi_scale_trans)
+    left = ScaledTranslation(-Y_LABEL_LEFT_IN, 0.0, fig.dpi_scale_trans)
+    ax.xaxis.set_label_coords(0.5, 0.0, transform=ax.transAxes + below)
+    ax.yaxis.set_label_coords(0.0, 0.5, transform=ax.transAxes + left)
 
 
 #: Per process, the figure of each kind and shape, redrawn for the next animal instead of rebuilt:
