@@ -17,7 +17,7 @@ import numpy as np
 from roamstat.report.agg_text import TextStampCanvas
 from matplotlib.dates import AutoDateLocator, ConciseDateFormatter, date2num
 from matplotlib.figure import Figure
-from matplotlib.ticker import LogFormatter, MaxNLocator
+from matplotlib.ticker import LogFormatter, LogLocator, MaxNLocator
 from matplotlib.transforms import ScaledTranslation
 from matplotlib.patches import PathPatch
 from matplotlib.path import Path as MplPath
@@ -127,6 +127,9 @@ def set_log(ax, x: bool = True, y: bool = True) -> None:
     for wanted, axis, set_scale in ((x, ax.xaxis, ax.set_xscale), (y, ax.yaxis, ax.set_yscale)):
         if wanted:
             set_scale("log")
+            # Minor ticks at 2 and 5 only (labelled when the axis spans few decades): the default 2-9
+            # made four times the tick objects to build and draw on a log axis.
+            axis.set_minor_locator(LogLocator(subs=(2.0, 5.0)))
             axis.set_major_formatter(PowerLabels())
             axis.set_minor_formatter(PowerLabels())
 
