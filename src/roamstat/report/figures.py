@@ -19,7 +19,7 @@ from matplotlib.dates import AutoDateLocator, ConciseDateFormatter, date2num
 from matplotlib.figure import Figure
 from matplotlib.ticker import LogFormatter, LogLocator, MaxNLocator
 from matplotlib.transforms import ScaledTranslation
-from matplotlib.patches import PathPatch
+from matplotlib.patches import PathPatch, Polygon
 from matplotlib.path import Path as MplPath
 from PIL import Image
 
@@ -290,28 +290,28 @@ def turn_rose(turn_rad, curves) -> Picture:
     return _png(fig, ax)
 
 
-def nsd_envelopes(panels, x_label: str) -> Picture:
+def nsd_envelopes(panels) -> Picture:
     """Observed net squared displacement against each null model's envelope.
 
     Parameters
     ----------
     panels : list of dict
-        One per null model: ``name``, ``x``, ``observed``, and optionally
-        ``lo``, ``hi`` (pointwise envelope) and ``mean`` — all NSD in m².
-    x_label : str
-        What ``x`` is (step index or elapsed time, with its unit).
+        One per null model: ``name``, ``x``, ``x_label`` (what ``x`` is, with its unit),
+        ``observed``, and optionally ``lo``, ``hi`` (pointwise envelope) and ``mean`` — all NSD in m².
+        Consecutive panels with the same ``x_label`` share their x axis; the NSD axis is shared by all.
     """
     every = np.concatenate([np.asarray(p[k], float).ravel() for p in panels
                             for k in ("observed", "lo", "hi", "mean") if p.get(k) is not None])
     scale, unit = area_scale(every)
+    labels = tuple(p["x_label"] for p in panels)
     # Panels stacked (not side by side) so each stays legible on a phone-width screen.
-    fig, axes = _take(("nsd", len(panels)), (NORMAL[0], 0.9 + 2.1 * len(panels)), nrows=len(panels), sharex=True,
+    fig, axes = _take(("nsd", labels), (NORMAL[0], 0.9 + 2.1 * len(panels)), nrows=len(panels), sharey=True,
                       squeeze=False)
-    for ax, panel in zip(axes[:, 0], panels):
+    for i, (ax, panel) in enumerate(zip(axes[:, 0], panels)):
         x = np.asarray(panel["x"], float)
         if panel.get("lo") is not None and panel.get("hi") is not None:
-            ax.fill_between(x, np.asarray(panel["lo"], float) / scale, np.asarray(panel["hi"], float) / scale,
-                            color="#d9d9d9", label="null envelope")
+            _band(ax, x, np.asarray(panel["lo"], float) / scale, np.asarray(panel["hi"], float) / scale,
+                  color="#d9d9d9", label="null envelope")
         if panel.get("mean") is not None:
             ax.plot(x, np.asarray(panel["mean"], float) / scale, color="#555555", linestyle="--", linewidth=1,
                     label="null mean")
@@ -320,8 +320,21 @@ def nsd_envelopes(panels, x_label: str) -> Picture:
         ax.text(0.0, 1.02, f"null model: {panel['name']}", transform=ax.transAxes, ha="left", va="bottom", fontsize=9)
         ax.set_ylabel(f"NSD ({unit})", fontsize=8)
         ax.tick_params(labelsize=7)
-    axes[-1, 0].set_xlabel(x_label, fontsize=8)
+        # The x axis is labelled under the last of a run of panels with the same x (steps or days).
+        last_of_run = i + 1 == len(panels) or labels[i + 1] != labels[i]
+        ax.tick_params(labelbottom=last_of_run)
+        ax.set_xlabel(labels[i] if last_of_run else "", fontsize=8)
     return _png(fig, axes[0, 0])
+
+
+def _band(ax, x, lo, hi, **style) -> None:
+    """The area between ``lo`` and ``hi`` as one polygon, its extent given at once (cheaper than fill_between)."""
+    vertices = np.column_stack([np.r_[x, x[::-1]], np.r_[lo, hi[::-1]]])
+    vertices = vertices[np.isfinite(vertices).all(axis=1)]
+    if len(vertices) < 3:
+        return
+    ax.add_artist(Polygon(vertices, closed=True, linewidth=0, transform=ax.transData, **style))
+    ax.update_datalim(vertices)
 
 
 def residency_fit(t, observed, fitted, y_label: str, t_label: str) -> Picture:

@@ -147,7 +147,7 @@ def null_tests(tables: dict, animal: AnimalView) -> Fragment:
         fragment.html = _heading("Null-model tests") + table(shown, numeric=numeric) + _full(animal, "null_tests", "All columns")
     panels = curves.null_panels(getattr(animal.result, "null_curves", None))
     if panels:
-        fragment.figures.append(("nsd", CAPTIONS["nsd"], lambda: figures.nsd_envelopes(*panels)))
+        fragment.figures.append(("nsd", CAPTIONS["nsd"], lambda: figures.nsd_envelopes(panels)))
     return fragment
 
 
