@@ -176,10 +176,10 @@ def state_densities(step_m, turn_rad, state, params) -> Picture:
         mine = s == k
         own_steps = steps[mine & np.isfinite(steps) & (steps > 0) & (steps <= top)]
         own_turns = turns[mine & np.isfinite(turns)]
-        if own_steps.size:
-            ax_s.hist(own_steps, bins=step_bins, density=True, histtype="stepfilled", alpha=0.3, color=colour)
-        if own_turns.size:
-            ax_t.hist(own_turns, bins=turn_bins, density=True, histtype="stepfilled", alpha=0.3, color=colour)
+        # Histograms as one filled outline each (stairs), not ax.hist's patch machinery.
+        for ax, own, bins in ((ax_s, own_steps, step_bins), (ax_t, own_turns, turn_bins)):
+            if own.size:
+                ax.stairs(np.histogram(own, bins=bins, density=True)[0], bins, fill=True, alpha=0.3, color=colour)
         with np.errstate(all="ignore"):
             f_step = np.exp(step_model(params.step_family, params.shape[i], params.scale[i]).logpdf(grid))
             f_turn = np.exp(turn_model(params.turn_family, params.mu[i], params.conc[i]).logpdf(theta))
