@@ -9,7 +9,8 @@ font's own ``set_text``/``draw_glyphs_to_bitmap`` (the whole-string path matplot
 3.10) and stamps it with Agg's ``draw_text_image``, which also rotates it (vertical axis labels).
 Mathtext and TeX strings take matplotlib's own path.
 
-The font's vertical metrics, read from its tables for every text on every draw, are kept too.
+Text sizes (matplotlib keeps them per renderer, i.e. per figure) and the font's vertical metrics
+(read from its tables for every text on every draw) are kept per process too.
 """
 
 from __future__ import annotations
@@ -36,6 +37,17 @@ def _stamp(text: str, font_key, size_pt: float, dpi: float, antialiased: bool):
     x_off, y_off = font.get_bitmap_offset()
     bitmap = np.array(font.get_image(), dtype=np.uint8)  # a copy: the font's buffer is reused
     return bitmap, x_off / 64.0, y_off / 64.0, font.get_descent() / 64.0
+
+
+@lru_cache(maxsize=STAMPS_KEPT)
+def _extent(text: str, font_key, size_pt: float, dpi: float):
+    """(width, height, descent) in pixels of ``text`` unrotated, as RendererAgg measures plain text."""
+    font = get_font(font_key)
+    font.clear()
+    font.set_size(size_pt, dpi)
+    font.set_text(text, 0.0, flags=get_hinting_flag())
+    width, height = font.get_width_height()
+    return width / 64.0, height / 64.0, font.get_descent() / 64.0
 
 
 @lru_cache(maxsize=256)
@@ -76,6 +88,12 @@ class TextStampRenderer(RendererAgg):
         x = round(x + x_off + descent * math.sin(math.radians(angle)))
         y = round(y + y_off + descent * math.cos(math.radians(angle)))
         self._renderer.draw_text_image(bitmap, x, y + 1, angle, gc)
+
+    def get_text_width_height_descent(self, s, prop, ismath):
+        # matplotlib keeps sizes per renderer, i.e. per figure kind; these are kept per process.
+        if ismath:
+            return super().get_text_width_height_descent(s, prop, ismath)
+        return _extent(s, _font_key(prop), prop.get_size_in_points(), self.dpi)
 
     def _get_font_height_metrics(self, prop):
         return _height_metrics(_font_key(prop), prop.get_size_in_points(), self.dpi)
