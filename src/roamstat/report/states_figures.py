@@ -71,14 +71,23 @@ def state_of_fixes(track: pd.DataFrame, decoded: pd.DataFrame, dt_s: float) -> n
     """
     if track is None or decoded is None or decoded.empty or "time" not in track.columns or not (dt_s > 0):
         return np.full(0 if track is None else len(track), np.nan)
-    left = pd.DataFrame({"time": pd.to_datetime(track["time"], utc=True), "order": np.arange(len(track))})
-    right = pd.DataFrame({"time": pd.to_datetime(decoded["time"], utc=True),
-                          "state": pd.to_numeric(decoded["state"], errors="coerce").astype(float)})
-    right = right.dropna().sort_values("time", kind="stable")
-    merged = pd.merge_asof(left.dropna().sort_values("time", kind="stable"), right, on="time", direction="backward",
-                           tolerance=pd.Timedelta(seconds=0.999 * float(dt_s)))
+    fix_time = pd.to_datetime(track["time"], utc=True)
+    step_time = pd.to_datetime(decoded["time"], utc=True)
+    step_state = pd.to_numeric(decoded["state"], errors="coerce").to_numpy(float)
+    kept = step_time.notna().to_numpy() & np.isfinite(step_state)
+    step_ns = step_time[kept].to_numpy("datetime64[ns]").view(np.int64)
+    order = np.argsort(step_ns, kind="stable")
+    step_ns, step_state = step_ns[order], step_state[kept][order]
     out = np.full(len(track), np.nan)
-    out[merged["order"].to_numpy()] = merged["state"].to_numpy(float)
+    if not step_ns.size:
+        return out
+    fix_ns = fix_time.to_numpy("datetime64[ns]").view(np.int64)
+    # The last step starting at or before each fix (the latest of equal times), within the tolerance.
+    last = np.searchsorted(step_ns, fix_ns, side="right") - 1
+    tolerance_ns = pd.Timedelta(seconds=0.999 * float(dt_s)).value
+    hit = fix_time.notna().to_numpy() & (last >= 0)
+    hit[hit] = fix_ns[hit] - step_ns[last[hit]] <= tolerance_ns
+    out[hit] = step_state[last[hit]]
     return out
 
 
