@@ -121,9 +121,9 @@ def turn_data(fitted: AnimalFits | None) -> dict | None:
 
 # --- NSD against the nulls -----------------------------------------------------
 
-def null_panels(null_curves: dict | None) -> tuple[list, str] | None:
-    """One panel per null model with an observed curve; and the x-axis label."""
-    panels, label = [], "step"
+def null_panels(null_curves: dict | None) -> list | None:
+    """One panel per null model with an observed curve, each with its x-axis label (steps or days)."""
+    panels = []
     for name, curve in (null_curves or {}).items():
         curve = curve.as_dict() if hasattr(curve, "as_dict") else curve  # compare.NullCurve
         observed = _first(curve, _NULL_KEYS["observed"])
@@ -137,13 +137,13 @@ def null_panels(null_curves: dict | None) -> tuple[list, str] | None:
             x, label = _values(seconds) / 86400.0, "days since the first fix"
         else:
             x, label = np.arange(observed.size, dtype=float), "steps since the first fix"
-        panel: dict[str, object] = {"name": str(name), "x": x, "observed": observed}
+        panel: dict[str, object] = {"name": str(name), "x": x, "x_label": label, "observed": observed}
         for key in ("lo", "hi", "mean"):
             value = _first(curve, _NULL_KEYS[key])
             panel[key] = None if value is None or _values(value).size != x.size else _values(value)
         if x.size == observed.size and x.size >= 2:
             panels.append(panel)
-    return (panels, label) if panels else None
+    return panels or None
 
 
 # --- residency ----------------------------------------------------------------

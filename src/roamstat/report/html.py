@@ -63,6 +63,8 @@ td.text{white-space:normal;min-width:12ch;max-width:48ch;overflow-wrap:anywhere}
 figure{margin:0}
 img{width:100%;height:auto;display:block;border:1px solid #eceff3}
 figcaption{font-size:.82rem;color:#4d5661;margin-top:.2rem}
+ul.key{list-style:none;display:flex;flex-wrap:wrap;gap:.1rem .9rem;padding:0;margin:.3rem 0 0;font-size:.8rem}
+ul.key li{display:flex;align-items:center;gap:.3rem;max-width:none}ul.key svg{flex:none}
 .note{background:#fff8e1;border-left:4px solid #e0a800;padding:.5rem .8rem;margin:.6rem 0}
 .caution{background:#fdecea;border-left:4px solid #c62828;padding:.5rem .8rem;margin:.6rem 0}
 .meta{font-size:.9rem;color:#3d4650}
@@ -164,9 +166,15 @@ def key_values(pairs) -> str:
     return f'<div class="scroll"><table><tbody>{rows}</tbody></table></div>'
 
 
-def figure(src: str, caption: str) -> str:
-    """An image with its caption."""
-    return (f'<figure><img src="{esc(src)}" alt="{esc(caption)}">'
+def figure(src: str, caption: str, key=()) -> str:
+    """An image with its key (:class:`roamstat.report.key.KeyEntry`, drawn in the page) and caption.
+
+    The alt text is the caption and the key in words.
+    """
+    from roamstat.report.key import key_html, key_text
+
+    alt = " ".join(t for t in (caption, key_text(key)) if t)
+    return (f'<figure><img src="{esc(src)}" alt="{esc(alt)}">{key_html(key)}'
             f"<figcaption>{esc(caption)}</figcaption></figure>")
 
 

@@ -29,7 +29,8 @@ import numpy as np
 import pandas as pd
 from matplotlib.patches import Circle
 
-from roamstat.report.figures import GREY, NORMAL, TRACK_COLOUR, _coordinate_labels, _png, _take, distance_scale, set_log
+from roamstat.report.figures import (GREY, NORMAL, TRACK_COLOUR, Picture, _coordinate_labels, _png, _take,
+                                     distance_scale, set_log)
 from roamstat.report.html import esc, fmt, table
 from roamstat.report.pairs import binned_pairs, lag_range
 
@@ -120,7 +121,7 @@ def which_area(rows: pd.DataFrame, models_a: pd.DataFrame) -> str:
     return sentence
 
 
-def smoothed_figure(smoothed_a: pd.DataFrame, fixes_a: pd.DataFrame, masked: bool) -> bytes | None:
+def smoothed_figure(smoothed_a: pd.DataFrame, fixes_a: pd.DataFrame, masked: bool) -> Picture | None:
     """The smoothed track (observed times as a line, predicted grid points as dots) over the raw fixes."""
     if not len(smoothed_a) or not {"x_m", "y_m", "se_m", "predicted"} <= set(smoothed_a.columns):
         return None
@@ -142,8 +143,7 @@ def smoothed_figure(smoothed_a: pd.DataFrame, fixes_a: pd.DataFrame, masked: boo
         ax.add_patch(Circle((sx[i] / scale, sy[i] / scale), CIRCLE_95 * se[i] / scale, fill=False,
                             edgecolor=TRACK_COLOUR, alpha=0.35, linewidth=0.6))
     _coordinate_labels(ax, unit, masked)
-    ax.legend(fontsize=7, loc="best")
-    return _png(fig)
+    return _png(fig, ax)
 
 
 def empirical_semivariance(t_s, x_m, y_m, n_bins: int = LAG_BINS, max_pairs: int = MAX_PAIRS):
@@ -174,7 +174,7 @@ def empirical_semivariance(t_s, x_m, y_m, n_bins: int = LAG_BINS, max_pairs: int
     return mean_lag, gamma, count[used]
 
 
-def semivariance_figure(motion) -> bytes | None:
+def semivariance_figure(motion) -> Picture | None:
     """Empirical semi-variance against lag with the best model's curve (error variance added)."""
     fit = motion.best if motion is not None else None
     if fit is None:
@@ -192,5 +192,4 @@ def semivariance_figure(motion) -> bytes | None:
     ax.set_xlabel("time lag (h)", fontsize=8)
     ax.set_ylabel("semi-variance per axis (m²)", fontsize=8)
     ax.tick_params(labelsize=8)
-    ax.legend(fontsize=7, loc="best")
-    return _png(fig)
+    return _png(fig, ax)

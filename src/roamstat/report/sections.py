@@ -48,8 +48,8 @@ FIGURE_ERRORS = (ValueError, TypeError, IndexError, KeyError, OverflowError, Zer
 class Fragment:
     """A builder's output: HTML (already escaped) and figures ``(kind, caption, draw)``.
 
-    ``draw`` is a function of no arguments returning PNG bytes (or None: nothing to draw); it is called
-    by :func:`render_animal`, and an error costs that figure only.
+    ``draw`` is a function of no arguments returning a :class:`roamstat.report.figures.Picture` (or
+    None: nothing to draw); it is called by :func:`render_animal`, and an error costs that figure only.
     """
 
     html: str = ""
@@ -147,7 +147,7 @@ def null_tests(tables: dict, animal: AnimalView) -> Fragment:
         fragment.html = _heading("Null-model tests") + table(shown, numeric=numeric) + _full(animal, "null_tests", "All columns")
     panels = curves.null_panels(getattr(animal.result, "null_curves", None))
     if panels:
-        fragment.figures.append(("nsd", CAPTIONS["nsd"], lambda: figures.nsd_envelopes(*panels)))
+        fragment.figures.append(("nsd", CAPTIONS["nsd"], lambda: figures.nsd_envelopes(panels)))
     return fragment
 
 
@@ -342,16 +342,16 @@ def render_animal(job: AnimalJob) -> str:
         parts.append(fragment.html)
         for kind, caption, draw in fragment.figures:
             try:
-                png = draw()
+                picture = draw()
             except FIGURE_ERRORS as error:
                 # Odd data must cost one figure, not the report; the reason is shown in its place.
                 shown.append(f'<p class="note">{esc(caption)} Figure not drawn ({type(error).__name__}: {esc(error)})</p>')
                 continue
-            if png is None:  # the builder found nothing to draw (e.g. too few lags for a semi-variogram)
+            if picture is None:  # the builder found nothing to draw (e.g. too few lags for a semi-variogram)
                 continue
             name = f"{job.name}-{kind}.png"
-            atomic_write(job.figures_dir / name, png)
-            shown.append(figure(view.root + "figures/" + name, caption))
+            atomic_write(job.figures_dir / name, picture.png)
+            shown.append(figure(view.root + "figures/" + name, caption, picture.key))
     if shown:
         parts.append('<h4>Figures</h4><div class="figures">' + "".join(shown) + "</div>")
     parts.append("</section>")

@@ -1,0 +1,111 @@
+"""An Agg canvas that renders each distinct text once per process and stamps the bitmap after.
+
+The report draws the same strings again and again: axis labels, tick labels such as "0" or "10²",
+panel titles.  The Agg renderer lays out and rasterises every glyph of every text on every draw;
+with the glyph-by-glyph text path of recent matplotlib that was about a third of the report's
+drawing time (profiled on the sample deployment).  :class:`TextStampCanvas` keeps, per process,
+the grey-level bitmap of each (string, font, size, dpi, antialiasing) drawn by FreeType through the
+font's own ``set_text``/``draw_glyphs_to_bitmap`` (the whole-string path matplotlib used up to
+3.10) and stamps it with Agg's ``draw_text_image``, which also rotates it (vertical axis labels).
+Mathtext and TeX strings take matplotlib's own path.
+
+Text sizes (matplotlib keeps them per renderer, i.e. per figure) and the font's vertical metrics
+(read from its tables for every text on every draw) are kept per process too.
+"""
+
+from __future__ import annotations
+
+import math
+from functools import lru_cache
+
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg, RendererAgg, get_hinting_flag
+from matplotlib.font_manager import FontProperties, fontManager, get_font
+
+#: Distinct texts kept per process; tick labels of a thousand animals repeat, so few distinct ones.
+STAMPS_KEPT = 4096
+
+
+@lru_cache(maxsize=STAMPS_KEPT)
+def _stamp(text: str, font_key, size_pt: float, dpi: float, antialiased: bool):
+    """(grey bitmap, x offset px, y offset px, descent px) of ``text`` drawn unrotated."""
+    font = get_font(font_key)
+    font.clear()
+    font.set_size(size_pt, dpi)
+    font.set_text(text, 0.0, flags=get_hinting_flag())
+    font.draw_glyphs_to_bitmap(antialiased=antialiased)
+    x_off, y_off = font.get_bitmap_offset()
+    bitmap = np.array(font.get_image(), dtype=np.uint8)  # a copy: the font's buffer is reused
+    return bitmap, x_off / 64.0, y_off / 64.0, font.get_descent() / 64.0
+
+
+@lru_cache(maxsize=STAMPS_KEPT)
+def _extent(text: str, font_key, size_pt: float, dpi: float):
+    """(width, height, descent) in pixels of ``text`` unrotated, as RendererAgg measures plain text."""
+    font = get_font(font_key)
+    font.clear()
+    font.set_size(size_pt, dpi)
+    font.set_text(text, 0.0, flags=get_hinting_flag())
+    width, height = font.get_width_height()
+    return width / 64.0, height / 64.0, font.get_descent() / 64.0
+
+
+@lru_cache(maxsize=256)
+def _height_metrics(font_key, size_pt: float, dpi: float):
+    """(ascent, descent, line gap) in pixels from the font's OS/2 or hhea table, as Text measures them."""
+    font = get_font(font_key)
+    units_per_em = font.get_sfnt_table("head")["unitsPerEm"]
+    scale = size_pt * dpi / 72.0 / units_per_em
+    for table_name, gap, ascent, descent in (("OS/2", "sTypoLineGap", "sTypoAscender", "sTypoDescender"),
+                                             ("hhea", "lineGap", "ascent", "descent")):
+        table = font.get_sfnt_table(table_name)
+        if table is not None:
+            return table[ascent] * scale, -table[descent] * scale, table[gap] * scale
+    return None, None, None
+
+
+def _font_key(prop) -> tuple:
+    """The font files of ``prop`` (size aside): matplotlib's lookup re-reads its settings on every call."""
+    return _font_files(tuple(prop.get_family()), prop.get_style(), prop.get_variant(), prop.get_weight(),
+                       prop.get_stretch(), prop.get_file())
+
+
+@lru_cache(maxsize=64)
+def _font_files(family, style, variant, weight, stretch, file) -> tuple:
+    prop = FontProperties(family=list(family), style=style, variant=variant, weight=weight, stretch=stretch, fname=file)
+    return tuple(fontManager._find_fonts_by_props(prop))
+
+
+class TextStampRenderer(RendererAgg):
+    """:class:`RendererAgg` drawing plain text from :func:`_stamp`'s per-process bitmaps."""
+
+    def draw_text(self, gc, x, y, s, prop, angle, ismath=False, mtext=None):
+        if ismath:
+            return super().draw_text(gc, x, y, s, prop, angle, ismath, mtext)
+        key = _font_key(prop)
+        bitmap, x_off, y_off, descent = _stamp(s, key, prop.get_size_in_points(), self.dpi, gc.get_antialiased())
+        # As the whole-string path placed it: offsets of the bitmap, descent turned with the text.
+        x = round(x + x_off + descent * math.sin(math.radians(angle)))
+        y = round(y + y_off + descent * math.cos(math.radians(angle)))
+        self._renderer.draw_text_image(bitmap, x, y + 1, angle, gc)
+
+    def get_text_width_height_descent(self, s, prop, ismath):
+        # matplotlib keeps sizes per renderer, i.e. per figure kind; these are kept per process.
+        if ismath:
+            return super().get_text_width_height_descent(s, prop, ismath)
+        return _extent(s, _font_key(prop), prop.get_size_in_points(), self.dpi)
+
+    def _get_font_height_metrics(self, prop):
+        return _height_metrics(_font_key(prop), prop.get_size_in_points(), self.dpi)
+
+
+class TextStampCanvas(FigureCanvasAgg):
+    """A :class:`FigureCanvasAgg` whose renderer is a :class:`TextStampRenderer`."""
+
+    def get_renderer(self):
+        w, h = self.get_width_height(physical=True)
+        key = w, h, self.figure.dpi
+        if self._lastKey != key:
+            self.renderer = TextStampRenderer(w, h, self.figure.dpi)
+            self._lastKey = key
+        return self.renderer

@@ -1,0 +1,98 @@
+"""The report's drawing shortcuts against matplotlib's own results.
+
+- :mod:`roamstat.report.agg_text` stamps cached text bitmaps: each string must land where
+  matplotlib's own Agg renderer draws it (same ink box within a pixel, same amount of ink), also
+  turned 90 degrees, and measure the same.
+- :mod:`roamstat.report.key` draws the figure's key in the page: its entries must be the labels
+  ``ax.get_legend_handles_labels()`` returns, in the colours matplotlib reports for the artists
+  (``matplotlib.colors.to_hex``).
+- :func:`roamstat.report.curves.null_panels` labels each null's x axis by what its curve is
+  indexed by (a time-indexed null must not be drawn on a step axis).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.colors import to_hex
+from matplotlib.figure import Figure
+
+from roamstat.report import curves, figures
+from roamstat.report.agg_text import TextStampCanvas
+from roamstat.report.html import figure as figure_html
+from roamstat.report.key import key_html, key_of
+
+TEXTS = [("east (km, masked: relative to a hidden origin)", 0), ("NSD (km²)", 90), ("10⁵", 0), ("0.0025", 0),
+         ("state 1 (152)", 90)]
+
+
+def _ink(canvas_class, text: str, angle: float) -> np.ndarray:
+    fig = Figure(figsize=(6.0, 6.0), dpi=80)
+    canvas_class(fig)
+    fig.text(0.3, 0.4, text, rotation=angle, fontsize=8)
+    fig.canvas.draw()
+    return 255 - np.asarray(fig.canvas.buffer_rgba())[..., 0].astype(int)  # black text on white: ink
+
+
+@pytest.mark.parametrize("text, angle", TEXTS)
+def test_stamped_text_lands_where_matplotlib_draws_it(text, angle):
+    ours, reference = _ink(TextStampCanvas, text, angle), _ink(FigureCanvasAgg, text, angle)
+    boxes = []
+    for ink in (ours, reference):
+        rows, cols = np.nonzero(ink > 60)
+        boxes.append(np.array([rows.min(), rows.max(), cols.min(), cols.max()]))
+    assert np.abs(boxes[0] - boxes[1]).max() <= 1, (boxes, text, angle)
+    assert ours.sum() == pytest.approx(reference.sum(), rel=0.05)
+
+
+def test_stamped_text_measures_as_matplotlib_does():
+    sizes = []
+    for canvas_class in (TextStampCanvas, FigureCanvasAgg):
+        fig = Figure(figsize=(4.0, 3.0), dpi=80)
+        canvas_class(fig)
+        label = fig.text(0.1, 0.5, "days since the first fix", fontsize=8)
+        sizes.append(label.get_window_extent(fig.canvas.get_renderer()).size)
+    assert sizes[0] == pytest.approx(sizes[1], abs=0.01)
+
+
+def test_key_reads_the_legend_entries_and_their_colours():
+    fig = Figure()
+    ax = fig.subplots()
+    ax.plot([0, 1], [0, 1], color="#1f5fa8", label="observed")
+    ax.plot([0, 1], [1, 0], color="#555555", linestyle="--", label="null mean")
+    ax.scatter([0.5], [0.5], color="#c62828", gid="square", label="end")
+    ax.fill([0, 1, 1], [0, 0, 1], color="#d9d9d9", label="null envelope")
+    ax.plot([0, 1], [0.5, 0.5], "D", color="black", label="stationary")
+    ax.plot([0, 1], [0.2, 0.2], color="#0072B2", alpha=0.5, label="faint")
+    entries = key_of(ax)
+    handles, labels = ax.get_legend_handles_labels()
+    assert [e.label for e in entries] == labels
+    assert [e.mark for e in entries] == ["line", "dashed", "square", "area", "diamond", "line"]
+    expected = [to_hex(handles[0].get_color()), to_hex(handles[1].get_color()),
+                to_hex(handles[2].get_facecolor()[0]), to_hex(handles[3].get_facecolor()),
+                to_hex(handles[4].get_color())]
+    assert [e.colour for e in entries[:5]] == expected
+    # A translucent colour is shown as it looks over the white page: 50 % of #0072B2 on white.
+    assert entries[5].colour == to_hex(((0x00 + 255) / 2 / 255, (0x72 + 255) / 2 / 255, (0xB2 + 255) / 2 / 255))
+
+
+def test_figure_html_carries_the_key_and_says_it_in_the_alt_text():
+    fig = Figure()
+    ax = fig.subplots()
+    ax.plot([0, 1], [0, 1], color="black", label="observed <1>")
+    html = figure_html("figures/a-nsd.png", "Caption.", key_of(ax))
+    assert '<ul class="key">' in html and "observed &lt;1&gt;" in html and 'stroke="#000000"' in html
+    assert 'alt="Caption. Key: observed &lt;1&gt; (line)."' in html
+    assert key_html(()) == "" and "<ul" not in figure_html("x.png", "Caption.")
+
+
+def test_null_panels_label_each_x_axis_by_its_index():
+    steps = {"step": np.arange(5.0), "observed_m2": np.arange(5.0) ** 2, "lo_m2": np.zeros(5), "hi_m2": np.full(5, 30.0)}
+    timed = {"t_s": np.arange(5.0) * 86400.0, "observed_m2": np.arange(5.0) ** 2}
+    panels = curves.null_panels({"crw": steps, "ctcrw": timed})
+    assert [p["x_label"] for p in panels] == ["steps since the first fix", "days since the first fix"]
+    assert panels[1]["x"].tolist() == [0.0, 1.0, 2.0, 3.0, 4.0]
+    picture = figures.nsd_envelopes(panels)
+    assert picture.png[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature (PNG spec, section 5.2)
+    assert [e.label for e in picture.key] == ["null envelope", "observed"]
