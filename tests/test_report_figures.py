@@ -19,6 +19,7 @@ from matplotlib.colors import to_hex
 from matplotlib.figure import Figure
 
 from roamstat.report import curves, figures
+from roamstat.report import agg_text
 from roamstat.report.agg_text import TextStampCanvas
 from roamstat.report.html import figure as figure_html
 from roamstat.report.key import key_html, key_of
@@ -33,6 +34,21 @@ def _ink(canvas_class, text: str, angle: float) -> np.ndarray:
     fig.text(0.3, 0.4, text, rotation=angle, fontsize=8)
     fig.canvas.draw()
     return 255 - np.asarray(fig.canvas.buffer_rgba())[..., 0].astype(int)  # black text on white: ink
+
+
+def test_the_report_stamps_text_here_and_falls_back_to_plain_agg_when_the_check_fails(monkeypatch):
+    # The per-process check: on this matplotlib the stamps match its own drawing, so they are used ...
+    agg_text.canvas_class.cache_clear()
+    assert agg_text.canvas_class() is TextStampCanvas
+    assert isinstance(figures._new((2.0, 2.0))[0].canvas, TextStampCanvas)
+    # ... and when the internals they use are gone (another matplotlib), figures use plain Agg.
+    agg_text.canvas_class.cache_clear()
+    monkeypatch.delattr(type(agg_text.fontManager), "_find_fonts_by_props")
+    agg_text._font_files.cache_clear()
+    try:
+        assert agg_text.canvas_class() is FigureCanvasAgg
+    finally:
+        agg_text.canvas_class.cache_clear()
 
 
 @pytest.mark.parametrize("text, angle", TEXTS)

@@ -11,6 +11,11 @@ Mathtext and TeX strings take matplotlib's own path.
 
 Text sizes (matplotlib keeps them per renderer, i.e. per figure) and the font's vertical metrics
 (read from its tables for every text on every draw) are kept per process too.
+
+The stamps use matplotlib internals (written against matplotlib 3.11).  :func:`canvas_class`
+checks once per process that stamped text lands where matplotlib's own renderer puts it, and
+falls back to the plain Agg canvas when it does not, or when the internals are missing: another
+matplotlib version costs speed, never a wrong figure.
 """
 
 from __future__ import annotations
@@ -20,6 +25,7 @@ from functools import lru_cache
 
 import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg, RendererAgg, get_hinting_flag
+from matplotlib.figure import Figure
 from matplotlib.font_manager import FontProperties, fontManager, get_font
 
 #: Distinct texts kept per process; tick labels of a thousand animals repeat, so few distinct ones.
@@ -109,3 +115,36 @@ class TextStampCanvas(FigureCanvasAgg):
             self.renderer = TextStampRenderer(w, h, self.figure.dpi)
             self._lastKey = key
         return self.renderer
+
+
+#: Texts of the per-process check: plain, superscript digits and a vertical axis label.
+CHECK_TEXTS = (("east (km)", 0.0), ("10⁵ 0.25", 0.0), ("NSD (km²)", 90.0))
+
+
+@lru_cache(maxsize=1)
+def canvas_class() -> type[FigureCanvasAgg]:
+    """:class:`TextStampCanvas` when its text matches matplotlib's own here, else :class:`FigureCanvasAgg`."""
+    try:
+        same = all(_same_ink(_ink(TextStampCanvas, text, angle), _ink(FigureCanvasAgg, text, angle))
+                   for text, angle in CHECK_TEXTS)
+    except Exception:  # noqa: BLE001 - any change in the internals the stamps use means: draw plainly
+        same = False
+    return TextStampCanvas if same else FigureCanvasAgg
+
+
+def _ink(canvas: type[FigureCanvasAgg], text: str, angle: float) -> np.ndarray:
+    """Ink (0-255 per pixel) of ``text`` drawn in black on white on ``canvas``."""
+    fig = Figure(figsize=(2.0, 2.0), dpi=80)
+    canvas(fig)
+    fig.text(0.2, 0.3, text, rotation=angle, fontsize=8)
+    fig.canvas.draw()
+    return 255 - np.asarray(fig.canvas.buffer_rgba())[..., 0].astype(int)
+
+
+def _same_ink(ours: np.ndarray, reference: np.ndarray) -> bool:
+    """Same ink box within a pixel and the same amount of ink within 5 %."""
+    boxes = []
+    for ink in (ours, reference):
+        rows, cols = np.nonzero(ink > 60)
+        boxes.append(np.array([rows.min(), rows.max(), cols.min(), cols.max()]))
+    return bool(np.abs(boxes[0] - boxes[1]).max() <= 1 and abs(ours.sum() / reference.sum() - 1.0) <= 0.05)

@@ -14,7 +14,7 @@ import threading
 from dataclasses import dataclass
 
 import numpy as np
-from roamstat.report.agg_text import TextStampCanvas
+from roamstat.report.agg_text import canvas_class
 from matplotlib.dates import AutoDateLocator, ConciseDateFormatter, date2num
 from matplotlib.figure import Figure
 from matplotlib.ticker import LogFormatter, LogLocator, MaxNLocator
@@ -44,7 +44,7 @@ START_COLOUR, END_COLOUR, TRACK_COLOUR, GREY = "#1a7f37", "#c62828", "#1f5fa8", 
 
 def _new(size, margins=None, **kwargs):
     fig = Figure(figsize=size, dpi=DPI)
-    TextStampCanvas(fig)
+    canvas_class()(fig)
     m = {**MARGINS_IN, **(margins or {})}
     width, height = size
     fig.subplots_adjust(left=m["left"] / width, right=1 - m["right"] / width, bottom=m["bottom"] / height,
