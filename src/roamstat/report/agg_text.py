@@ -60,13 +60,16 @@ def _extent(text: str, font_key, size_pt: float, dpi: float):
 def _height_metrics(font_key, size_pt: float, dpi: float):
     """(ascent, descent, line gap) in pixels from the font's OS/2 or hhea table, as Text measures them."""
     font = get_font(font_key)
-    units_per_em = font.get_sfnt_table("head")["unitsPerEm"]
-    scale = size_pt * dpi / 72.0 / units_per_em
-    for table_name, gap, ascent, descent in (("OS/2", "sTypoLineGap", "sTypoAscender", "sTypoDescender"),
-                                             ("hhea", "lineGap", "ascent", "descent")):
-        table = font.get_sfnt_table(table_name)
-        if table is not None:
-            return table[ascent] * scale, -table[descent] * scale, table[gap] * scale
+    head = font.get_sfnt_table("head")
+    if head is None:
+        return None, None, None  # Text then measures the font itself
+    scale = size_pt * dpi / 72.0 / head["unitsPerEm"]
+    os2 = font.get_sfnt_table("OS/2")
+    if os2 is not None:
+        return os2["sTypoAscender"] * scale, -os2["sTypoDescender"] * scale, os2["sTypoLineGap"] * scale
+    hhea = font.get_sfnt_table("hhea")
+    if hhea is not None:
+        return hhea["ascent"] * scale, -hhea["descent"] * scale, hhea["lineGap"] * scale
     return None, None, None
 
 
@@ -135,10 +138,10 @@ def canvas_class() -> type[FigureCanvasAgg]:
 def _ink(canvas: type[FigureCanvasAgg], text: str, angle: float) -> np.ndarray:
     """Ink (0-255 per pixel) of ``text`` drawn in black on white on ``canvas``."""
     fig = Figure(figsize=(2.0, 2.0), dpi=80)
-    canvas(fig)
+    drawn = canvas(fig)
     fig.text(0.2, 0.3, text, rotation=angle, fontsize=8)
-    fig.canvas.draw()
-    return 255 - np.asarray(fig.canvas.buffer_rgba())[..., 0].astype(int)
+    drawn.draw()
+    return 255 - np.asarray(drawn.buffer_rgba())[..., 0].astype(int)
 
 
 def _same_ink(ours: np.ndarray, reference: np.ndarray) -> bool:

@@ -49,7 +49,7 @@ def _entry(handle, label: str) -> KeyEntry:
     if isinstance(handle, Line2D):
         style, marker = handle.get_linestyle(), handle.get_marker()
         if style in ("None", "", " ") and marker not in (None, "None", "", " "):
-            return KeyEntry(label, _shown_colour(handle.get_color(), handle.get_alpha()), _MARKS.get(marker, "dot"))
+            return KeyEntry(label, _shown_colour(handle.get_color(), handle.get_alpha()), _MARKS.get(str(marker), "dot"))
         mark = "dashed" if style in ("--", "dashed") else ("bold" if handle.get_linewidth() >= 2 else "line")
         return KeyEntry(label, _shown_colour(handle.get_color(), handle.get_alpha()), mark)
     if isinstance(handle, LineCollection):
