@@ -23,7 +23,7 @@ import numpy as np
 MIN_VAR_M2 = 1e-9
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def forward(F, Q, r, observed, Y, P_first, update_first, store=True):
     """Run the filter through every time.
 
@@ -97,7 +97,7 @@ def forward(F, Q, r, observed, Y, P_first, update_first, store=True):
     return V, S, mp, Pp, mf, Pf
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def backward(F, mp, Pp, mf, Pf):
     """Rauch-Tung-Striebel pass: smoothed means (n, k, 2) and covariances (n, 2, 2).
 
