@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 from scipy import special, stats
 
-from roamstat.models.turns import KAPPA_NORMAL, VonMisesTurns, von_mises_draws
+from roamstat.models.turns import KAPPA_NORMAL, VonMisesTurns, von_mises_draws, von_mises_unit
 from roamstat.track import wrap_angle
 
 N = 40_000
@@ -50,3 +50,12 @@ def test_the_turn_model_samples_with_it():
     model = VonMisesTurns(0.4, 3.0, 10, 0.0)
     np.testing.assert_array_equal(model.sample(500, np.random.default_rng(5)),
                                   von_mises_draws(model.mu, model.kappa, 500, np.random.default_rng(5)))
+
+
+@pytest.mark.parametrize("kappa", [0.0, 0.4, 8.0, 100 * KAPPA_NORMAL])
+def test_unit_draws_are_the_cosines_and_sines_of_the_angles(kappa):
+    # the walk turns by these: they must be the same turns as the angles drawn from the same state
+    angles = von_mises_draws(-2.5, kappa, 5000, np.random.default_rng(12))
+    cos_t, sin_t = von_mises_unit(-2.5, kappa, 5000, np.random.default_rng(12))
+    np.testing.assert_allclose(cos_t, np.cos(angles), atol=1e-12)
+    np.testing.assert_allclose(sin_t, np.sin(angles), atol=1e-12)

@@ -125,6 +125,10 @@ class VonMisesTurns(TurnModel):
     def sample(self, n, rng):
         return von_mises_draws(self.mu, self.kappa, int(n), rng)
 
+    def sample_unit(self, n, rng):
+        """Cosines and sines of ``sample(n, rng)``'s angles (see :func:`von_mises_unit`)."""
+        return von_mises_unit(self.mu, self.kappa, int(n), rng)
+
     def _a(self) -> float:
         # A(kappa) = I1(kappa) / I0(kappa), with exponentially scaled Bessel functions
         return float(special.ive(1, self.kappa) / special.ive(0, self.kappa))
@@ -200,32 +204,57 @@ def von_mises_draws(mu: float, kappa: float, n: int, rng: np.random.Generator) -
         return _wrapped(rng.uniform(-math.pi, math.pi, n))
     if kappa > KAPPA_NORMAL:
         return _wrapped(rng.normal(mu, 1.0 / math.sqrt(kappa), n))
+    cos_off, sign = _best_fisher_draws(kappa, int(n), rng)
+    return _wrapped(mu + sign * np.arccos(cos_off))
+
+
+def von_mises_unit(mu: float, kappa: float, n: int, rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray]:
+    """Cosines and sines of the angles :func:`von_mises_draws` gives for the same ``rng`` state.
+
+    A walk can turn by these directly (a rotation), with no inverse cosine here and no sine or
+    cosine of the heading there.
+
+    Returns
+    -------
+    cos, sin : ndarray of float, shape (n,)
+    """
+    if kappa <= 0.0 or kappa > KAPPA_NORMAL:
+        angle = von_mises_draws(mu, kappa, n, rng)
+        return np.cos(angle), np.sin(angle)
+    cos_off, sign = _best_fisher_draws(kappa, int(n), rng)
+    sin_off = sign * np.sqrt(1.0 - cos_off * cos_off)  # sin of +-acos(f)
+    cos_mu, sin_mu = math.cos(mu), math.sin(mu)
+    return cos_mu * cos_off - sin_mu * sin_off, sin_mu * cos_off + cos_mu * sin_off
+
+
+def _best_fisher_draws(kappa: float, n: int, rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray]:
+    """cos(theta - mu) and the sign of theta - mu for ``n`` von Mises draws (0 < kappa <= KAPPA_NORMAL)."""
     # Best & Fisher's tau, rho = (tau - sqrt(2 tau)) / (2 kappa) and r; rho rewritten as
     # 2 kappa tau / ((s + 1)(tau + sqrt(2 tau))), s = sqrt(1 + 4 kappa^2), which cancels nothing as kappa -> 0
     s = math.sqrt(1.0 + 4.0 * kappa * kappa)
     tau = 1.0 + s
     rho = 2.0 * kappa * tau / ((s + 1.0) * (tau + math.sqrt(2.0 * tau)))
     r = (1.0 + rho * rho) / (2.0 * rho)
-    out = np.empty(int(n))
+    cos_off, sign = np.empty(n), np.empty(n)
     filled = 0
-    while filled < out.size:
+    while filled < n:
         # three uniforms per accepted angle plus two per rejection; the acceptance rate is above 0.65
         # (Best & Fisher 1979, Table 1), so 3.5 per angle nearly always suffices in one pass
-        filled = _best_fisher(mu, kappa, r, rng.random(int(3.5 * (out.size - filled)) + 64), out, filled)
-    return _wrapped(out)
+        filled = _best_fisher(kappa, r, rng.random(int(3.5 * (n - filled)) + 64), cos_off, sign, filled)
+    return cos_off, sign
 
 
 @numba.njit(cache=True, nogil=True)
-def _best_fisher(mu, kappa, r, u, out, filled):
-    """Fill ``out[filled:]`` from the uniforms ``u`` while they last; returns the new fill count."""
+def _best_fisher(kappa, r, u, cos_off, sign, filled):
+    """Fill ``cos_off[filled:]``, ``sign[filled:]`` from the uniforms ``u`` while they last; the new fill count."""
     j = 0
-    while filled < out.size and j + 3 <= u.size:
+    while filled < cos_off.size and j + 3 <= u.size:
         z = math.cos(math.pi * u[j])
         f = (1.0 + r * z) / (r + z)
         c = kappa * (r - f)
         if c * (2.0 - c) > u[j + 1] or math.log(c / u[j + 1]) + 1.0 - c >= 0.0:
-            turn = math.acos(min(1.0, max(-1.0, f)))
-            out[filled] = mu + turn if u[j + 2] >= 0.5 else mu - turn
+            cos_off[filled] = min(1.0, max(-1.0, f))
+            sign[filled] = 1.0 if u[j + 2] >= 0.5 else -1.0
             filled += 1
             j += 3
         else:

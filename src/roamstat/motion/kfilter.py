@@ -24,13 +24,16 @@ MIN_VAR_M2 = 1e-9
 
 
 @numba.njit(cache=True, nogil=True)
-def forward(F, Q, r, observed, Y, P_first, update_first, store=True):
+def forward(F, Q, interval, r, observed, Y, P_first, update_first, store=True):
     """Run the filter through every time.
 
     Parameters
     ----------
-    F, Q : ndarray (n, 2, 2)
-        Transition and innovation covariance into time i (row 0 unused).
+    F, Q : ndarray (m, 2, 2)
+        Transition and innovation covariance over each distinct interval.
+    interval : ndarray of int (n,)
+        Row of F and Q that leads into time i (entry 0 unused): a fix schedule has few distinct
+        intervals, so the matrices are computed once per interval, not once per fix.
     r : ndarray (n,)
         Location-error variance per axis at each time.
     observed : ndarray of bool (n,)
@@ -65,7 +68,8 @@ def forward(F, Q, r, observed, Y, P_first, update_first, store=True):
     p00, p01, p11 = P_first[0, 0], P_first[0, 1], P_first[1, 1]
     for i in range(n):
         if i > 0:
-            f00, f01, f10, f11 = F[i, 0, 0], F[i, 0, 1], F[i, 1, 0], F[i, 1, 1]
+            d = interval[i]
+            f00, f01, f10, f11 = F[d, 0, 0], F[d, 0, 1], F[d, 1, 0], F[d, 1, 1]
             for c in range(k):
                 a, b = m[c, 0], m[c, 1]
                 m[c, 0] = f00 * a + f01 * b
@@ -75,9 +79,9 @@ def forward(F, Q, r, observed, Y, P_first, update_first, store=True):
             t01 = f00 * p01 + f01 * p11
             t10 = f10 * p00 + f11 * p01
             t11 = f10 * p01 + f11 * p11
-            p00, p01, p11 = (t00 * f00 + t01 * f01 + Q[i, 0, 0],
-                             t00 * f10 + t01 * f11 + Q[i, 0, 1],
-                             t10 * f10 + t11 * f11 + Q[i, 1, 1])
+            p00, p01, p11 = (t00 * f00 + t01 * f01 + Q[d, 0, 0],
+                             t00 * f10 + t01 * f11 + Q[d, 0, 1],
+                             t10 * f10 + t11 * f11 + Q[d, 1, 1])
         if store:
             mp[i] = m
             Pp[i, 0, 0], Pp[i, 0, 1], Pp[i, 1, 0], Pp[i, 1, 1] = p00, p01, p01, p11

@@ -64,12 +64,11 @@ def prepare_track(t_s, x_m, y_m, error_sd_m) -> Track:
                  np.column_stack([rel, np.ones(t.size)]))
 
 
-def track_transitions(name: str, p: dict, track: Track) -> tuple[np.ndarray, np.ndarray]:
-    """``transition(name, p, track.dt_s)``, computed once per distinct interval."""
+def track_transitions(name: str, p: dict, track: Track) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """F and Q once per distinct interval and the row of each fix (see :func:`roamstat.motion.kfilter.forward`)."""
     if track.dt_unique is None:
-        return transition(name, p, track.dt_s)
-    F, Q = transition(name, p, track.dt_unique)
-    return F[track.dt_index], Q[track.dt_index]
+        return (*transition(name, p, track.dt_s), np.arange(track.n))
+    return (*transition(name, p, track.dt_unique), track.dt_index)
 
 
 def error_variance(track: Track, p: dict) -> np.ndarray:
@@ -92,7 +91,7 @@ def conditional_loglik(name: str, p: dict, track: Track, mean_xy=None) -> tuple[
     mean_xy : array-like of 2, optional
         Fixed mean position (absolute metres) for a range-resident model; profiled when None.
     """
-    F, Q = track_transitions(name, p, track)
+    F, Q, interval = track_transitions(name, p, track)
     r = error_variance(track, p)
     resident = name in RANGE_RESIDENT
     P0 = initial_cov(name, p, r[0])
@@ -104,7 +103,7 @@ def conditional_loglik(name: str, p: dict, track: Track, mean_xy=None) -> tuple[
         mean = np.asarray(mean_xy, dtype=float)
         Y = track.xy - (mean - track.origin)
     observed = np.ones(track.n, dtype=np.bool_)
-    V, S, *_ = forward(F, Q, r, observed, np.ascontiguousarray(Y), P0, resident, False)
+    V, S, *_ = forward(F, Q, interval, r, observed, np.ascontiguousarray(Y), P0, resident, False)
     V, S = V[1:], S[1:]
     if resident and mean_xy is None:
         w1 = V[:, 2] / S
