@@ -16,11 +16,14 @@ Cambridge University Press (prediction-error decomposition of the likelihood).
 """
 from __future__ import annotations
 
+import math
+
 import numba
 import numpy as np
 
 # floor on an innovation variance (m^2): only reached with zero location error at dt = 0
 MIN_VAR_M2 = 1e-9
+LOG_2PI = math.log(2.0 * math.pi)
 
 
 @numba.njit(cache=True, nogil=True)
@@ -99,6 +102,42 @@ def forward(F, Q, interval, r, observed, Y, P_first, update_first, store=True):
             mf[i] = m
             Pf[i, 0, 0], Pf[i, 0, 1], Pf[i, 1, 0], Pf[i, 1, 1] = p00, p01, p01, p11
     return V, S, mp, Pp, mf, Pf
+
+
+@numba.njit(cache=True, nogil=True)
+def innovation_loglik(V, S, profile):
+    """Gaussian log-likelihood of the innovations of times 1..n-1 on the first two columns of V.
+
+    With ``profile``, the third column holds the innovations of a column of ones: the mean position is
+    fitted first by generalised least squares (weights 1/S) and its share removed from each axis.
+
+    Returns
+    -------
+    loglik : float
+        -sum(ln 2 pi + ln S_i) - 0.5 sum_i sum_c V_ic^2 / S_i.
+    rel : ndarray (2,)
+        The profiled mean (0 without ``profile``).
+    """
+    n = V.shape[0]
+    rel = np.zeros(2)
+    if profile:
+        w_ones = w_x = w_y = 0.0
+        for i in range(1, n):
+            w = V[i, 2] / S[i]
+            w_ones += w * V[i, 2]
+            w_x += w * V[i, 0]
+            w_y += w * V[i, 1]
+        rel[0], rel[1] = w_x / w_ones, w_y / w_ones
+    # in blocks, so rounding grows with the block and block counts, not with n (as numpy's pairwise sum)
+    total = block = 0.0
+    for i in range(1, n):
+        u = V[i, 0] - (V[i, 2] * rel[0] if profile else 0.0)
+        v = V[i, 1] - (V[i, 2] * rel[1] if profile else 0.0)
+        block += LOG_2PI + math.log(S[i]) + 0.5 * (u * u + v * v) / S[i]
+        if i % 1024 == 0:
+            total += block
+            block = 0.0
+    return -(total + block), rel
 
 
 @numba.njit(cache=True, nogil=True)

@@ -19,9 +19,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from .kalman import RANGE_RESIDENT, initial_cov, transition
-from .kfilter import forward
+from .kfilter import forward, innovation_loglik
 
-LOG_2PI = np.log(2.0 * np.pi)
 
 
 @dataclass(frozen=True)
@@ -104,11 +103,8 @@ def conditional_loglik(name: str, p: dict, track: Track, mean_xy=None) -> tuple[
         Y = track.xy - (mean - track.origin)
     observed = np.ones(track.n, dtype=np.bool_)
     V, S, *_ = forward(F, Q, interval, r, observed, np.ascontiguousarray(Y), P0, resident, False)
-    V, S = V[1:], S[1:]
-    if resident and mean_xy is None:
-        w1 = V[:, 2] / S
-        rel = (w1 @ V[:, :2]) / (w1 @ V[:, 2])  # GLS mean from the innovations of y and of 1
-        V = V[:, :2] - np.outer(V[:, 2], rel)
-        mean = rel + track.origin
-    loglik = -np.sum(LOG_2PI + np.log(S)) - 0.5 * np.sum(V[:, :2] ** 2 / S[:, None])
+    profile = resident and mean_xy is None
+    loglik, rel = innovation_loglik(V, S, profile)
+    if profile:
+        mean = rel + track.origin  # GLS mean from the innovations of y and of 1
     return float(loglik), mean
