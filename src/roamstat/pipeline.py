@@ -193,8 +193,22 @@ def analyse_animal(task: AnimalTask) -> AnimalResult:
         result.null_tests = _with_id(null_rows, aid)
         result.null_curves = curves
     if "ranges" in task.stages:
+        from roamstat import ranges
+
         assert located is not None  # selected above whenever the ranges stage runs
-        _ranges_stage(task, located, result)
+        row, curve = ranges.residency_animal(located, cfg)
+        result.residency = {"animal_id": aid, **row}
+        result.residency_curve = curve
+        from roamstat.ranges.estimate import MIN_FIXES, too_few_fixes
+
+        if len(located) < MIN_FIXES:  # what ranges_animal returns, without selecting the located fixes again
+            range_rows, features, extras = too_few_fixes(len(located), cfg.mask_locations)
+        else:
+            range_rows, features, extras = ranges.ranges_animal(located, cfg, task.origin,
+                                                                model=_range_model(task, result))
+        result.ranges = _with_id(range_rows, aid)
+        result.features = features
+        result.range_extras = extras
     if states is not None and result.states is None:
         _with_states(result, states.result())
     return result
@@ -246,24 +260,6 @@ def _with_states(result: AnimalResult, states) -> None:
     result.states = states
     if result.fitted is not None:
         result.fitted.states = states.best  # the model the ``states`` null walks
-
-
-def _ranges_stage(task: AnimalTask, located: pd.DataFrame, result: AnimalResult) -> None:
-    """Residency and ranges of the located fixes (ranges.csv, residency.csv rows and the range features)."""
-    from roamstat import ranges
-    from roamstat.ranges.estimate import MIN_FIXES, too_few_fixes
-
-    row, curve = ranges.residency_animal(located, task.cfg)
-    result.residency = {"animal_id": task.animal_id, **row}
-    result.residency_curve = curve
-    if len(located) < MIN_FIXES:  # what ranges_animal returns, without selecting the located fixes again
-        range_rows, features, extras = too_few_fixes(len(located), task.cfg.mask_locations)
-    else:
-        range_rows, features, extras = ranges.ranges_animal(located, task.cfg, task.origin,
-                                                            model=_range_model(task, result))
-    result.ranges = _with_id(range_rows, task.animal_id)
-    result.features = features
-    result.range_extras = extras
 
 
 def _motion_stage(task: AnimalTask, located: pd.DataFrame, result: AnimalResult) -> None:
