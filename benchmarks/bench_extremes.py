@@ -9,14 +9,19 @@
    2,000,000 the time is also extrapolated linearly to 2,000,000 fixes (a lower bound when a
    stage grows faster than linearly).
 
+3. ``--stage-cpu N``: the big animal's analyse sub-stages one after another in this process, one
+   thread, with the CPU seconds of each (motion fits, smoothing, step/turn fits, states, each null,
+   residency, the range model's bias refits, ranges), so a change's effect is seen stage by stage.
+
 Ratios below 1 meet the target.  Simulated data (a generator written here), not real tracks.
 
-    python benchmarks/bench_extremes.py [--tiny 50000] [--big 2000000] [--workers 2]
+    python benchmarks/bench_extremes.py [--tiny 50000] [--big 2000000] [--workers 2] [--stage-cpu 200000]
 """
 
 from __future__ import annotations
 
 import argparse
+import json
 import os
 import resource
 import shutil
@@ -70,13 +75,49 @@ def run(path: Path, *options: str) -> tuple[float, float, float]:
     return elapsed, cpu, max(before.ru_maxrss, after.ru_maxrss) / 1024
 
 
+def stage_cpu(path: Path) -> None:
+    """CPU and wall seconds of each analyse sub-stage of the one animal in ``path``, serially."""
+    from roamstat import compare, models, pipeline, ranges, rows, states
+    from roamstat.config import Config
+    from roamstat.motion.animal import fit_animal_motion, smoothed_track
+    from roamstat.ranges.model import debiased_fit, from_motion_fit
+    from roamstat.seeds import animal_rng
+
+    cfg = Config(workers=1)
+    task = pipeline.animal_tasks(pipeline.load([str(path)], cfg), pipeline.command_stages("run", cfg), cfg)[0]
+    located = rows.located(task.fixes)
+    aid, done = task.animal_id, {}
+
+    def timed(name, func, *args):
+        cpu, wall = time.process_time(), time.perf_counter()
+        done[name] = func(*args)
+        print(f"stage-cpu: {name:16s} {time.process_time() - cpu:7.1f} s CPU {time.perf_counter() - wall:7.1f} s wall",
+              flush=True)
+        return done[name]
+
+    motion = timed("motion fits", fit_animal_motion, located, cfg)
+    timed("smoothing", smoothed_track, motion, aid, None)
+    fitted = timed("step/turn fits", models.fit_animal, task.steps, cfg, animal_rng(cfg.seed, aid, "fit"))
+    timed("states", states.fit_animal_states, task.steps, cfg, animal_rng(cfg.seed, aid, "states"))
+    for name in cfg.nulls:
+        timed(f"null {name}", compare.test_animal, task.fixes, task.steps, fitted, task.nominal_dt_s,
+              Config(workers=1, nulls=(name,)), animal_rng(cfg.seed, aid, "null"), motion)
+    timed("residency", ranges.residency_animal, located, cfg)
+    model = timed("range bias refit", debiased_fit, motion.best, motion.t_s, motion.error,
+                  animal_rng(cfg.seed, aid, "ranges"))
+    timed("ranges", ranges.ranges_animal, located, cfg, task.origin, from_motion_fit(model))
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--tiny", type=int, default=50_000, help="tiny animals (0 skips)")
     parser.add_argument("--big", type=int, default=BIG_TARGET_FIXES, help="fixes of the big animal (0 skips)")
     parser.add_argument("--workers", type=int, default=2)
+    parser.add_argument("--stage-cpu", type=int, default=0, help="fixes of a big animal timed stage by stage")
     args = parser.parse_args()
     WORK.mkdir(exist_ok=True)
+    if args.stage_cpu:
+        stage_cpu(big_track(args.stage_cpu, WORK / f"big_{args.stage_cpu}.csv"))
     if args.tiny:
         one, one_cpu, _ = run(tiny_deployment(1, WORK / "tiny_1.csv"), "--no-report")
         many, many_cpu, _ = run(tiny_deployment(args.tiny, WORK / f"tiny_{args.tiny}.csv"), "--no-report")
@@ -93,6 +134,13 @@ def main() -> None:
               f"{scaled / BIG_TARGET_S:.2f} (linear extrapolation), memory ratio to 3 GB {peak / BIG_TARGET_MB:.2f}"
               + ("" if args.big == BIG_TARGET_FIXES else " (memory not extrapolated)")
               + f"; machine load (1-min average) {load_before:.1f} before, {os.getloadavg()[0]:.1f} after")
+        print("big: stages (wall s) " + ", ".join(f"{s['stage'].split(':')[0]} {s['duration_s']:.0f}"
+                                                 for s in stage_times(WORK / f"out-big_{args.big}")))
+
+
+def stage_times(out: Path) -> list[dict]:
+    """The manifest's stage records (name, wall seconds) of a finished run."""
+    return json.loads((out / "manifest.json").read_text()).get("stages", [])
 
 
 if __name__ == "__main__":

@@ -9,6 +9,7 @@ from scipy import stats
 from nulls_doubles import StepDouble, fits_double, gamma_steps, von_mises_turns
 from roamstat.nulls import (CrwNull, LevyNull, NullUnavailable, ShuffleNull, build_null, short_steps,
                             simulate_nsd)
+from roamstat.nulls.walk import RENORMALISE, UnitTurns, turn_resampler
 
 
 def replay(values):
@@ -40,6 +41,30 @@ def test_engine_matches_direct_positions_on_the_same_variates():
     simulate_nsd(lambda n, r: (asked.append(n), np.ones(n))[1], lambda n, r: np.zeros(n), 300, 2, rng,
                  np.array([0, 10, 40]))
     assert asked == [80]
+
+
+def test_turns_given_as_cosines_and_sines_walk_the_same_track():
+    # same reference as above; the turns come as (cos, sin) pairs, the walk rotates its heading by them,
+    # over a walk long enough to cross the heading's renormalisation several times
+    rng = np.random.default_rng(2)
+    n = 3 * RENORMALISE + 5
+    steps, turns = rng.gamma(2.0, 10.0, (2, n)), rng.vonmises(-0.3, 2.0, (2, n))
+    heading = np.cumsum(turns, axis=1)
+    x, y = np.cumsum(steps * np.cos(heading), axis=1), np.cumsum(steps * np.sin(heading), axis=1)
+    idx = np.array([0, 1, 4096, n])
+    unit = UnitTurns(replay(turns), lambda k, r: (replay(np.cos(turns))(k, r), replay(np.sin(turns))(k, r)))
+    nsd = simulate_nsd(replay(steps), unit, n, 2, rng, idx)
+    np.testing.assert_allclose(nsd[:, 1:], (x ** 2 + y ** 2)[:, idx[1:] - 1], rtol=1e-9)
+
+
+def test_resampled_turns_as_cosines_and_sines_are_the_resampled_angles():
+    values = np.random.default_rng(3).uniform(-np.pi, np.pi, 50)
+    source = turn_resampler(values)
+    angles = source(1000, np.random.default_rng(4))
+    cos_t, sin_t = source.unit(1000, np.random.default_rng(4))
+    assert set(angles) <= set(values)
+    np.testing.assert_array_equal(cos_t, np.cos(angles))
+    np.testing.assert_array_equal(sin_t, np.sin(angles))
 
 
 def test_chunks_cover_every_replicate_once():

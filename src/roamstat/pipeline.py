@@ -9,6 +9,8 @@ from __future__ import annotations
 
 import importlib
 import time
+import threading
+from concurrent.futures import Future
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from pathlib import Path
@@ -167,19 +169,21 @@ def analyse_animal(task: AnimalTask) -> AnimalResult:
     result = AnimalResult(animal_id=aid)
     # motion and ranges see the same located fixes: selected and sorted once
     located = rows.located(task.fixes) if {"motion", "ranges"} & set(task.stages) else None
-    if "motion" in task.stages:
-        _motion_stage(task, located, result)
+    alongside = Alongside(_runs_alongside(task))
+    # states and motion need no other stage: a big animal runs them on threads beside the fits (their
+    # compiled kernels release the GIL); each stage draws from its own generator, so the results are
+    # those of the serial order
+    states = alongside(_states_stage, task) if "states" in task.stages else None
+    motion = alongside(_motion_stage, task, located, result) if "motion" in task.stages else None
     if "fit" in task.stages:
         from roamstat import models
 
         result.fitted = models.fit_animal(task.steps, cfg, animal_rng(cfg.seed, aid, "fit"))
         result.fits = _with_id(result.fitted.rows, aid)
-    if "states" in task.stages:
-        from roamstat import states
-
-        result.states = states.fit_animal_states(task.steps, cfg, animal_rng(cfg.seed, aid, "states"))
-        if result.fitted is not None:
-            result.fitted.states = result.states.best  # the model the ``states`` null walks
+    if motion is not None:
+        motion.result()
+    if states is not None and "states" in cfg.nulls:
+        _with_states(result, states.result())  # the ``states`` null walks this model: wait for it
     if "null" in task.stages:
         from roamstat import compare
 
@@ -205,7 +209,57 @@ def analyse_animal(task: AnimalTask) -> AnimalResult:
         result.ranges = _with_id(range_rows, aid)
         result.features = features
         result.range_extras = extras
+    if states is not None and result.states is None:
+        _with_states(result, states.result())
     return result
+
+
+#: Steps above which an animal's independent stages run side by side when ``--workers`` > 1 (judgement, no
+#: source: below it the stages take seconds and threads would only add overhead).
+ALONGSIDE_STEPS = 50_000
+
+
+def _runs_alongside(task: AnimalTask) -> bool:
+    return task.cfg.workers > 1 and len(task.steps) > ALONGSIDE_STEPS
+
+
+class Alongside:
+    """``alongside(f, *args)``: ``f`` started on a thread (when ``threaded``) or run now; ``.result()`` waits.
+
+    Every started stage is waited for by its ``.result()``; the threads are daemons, so an error or a
+    stop in between does not wait for them and Ctrl-C and SIGTERM stay prompt.
+    """
+
+    def __init__(self, threaded: bool) -> None:
+        self.threaded = threaded
+
+    def __call__(self, func, *args) -> Future:
+        future: Future = Future()
+        if not self.threaded:
+            future.set_result(func(*args))  # an exception propagates here, as in the serial order
+            return future
+
+        def work() -> None:
+            try:
+                future.set_result(func(*args))
+            except BaseException as exc:  # handed to whoever waits for the result
+                future.set_exception(exc)
+
+        threading.Thread(target=work, name=f"roamstat-{func.__name__}", daemon=True).start()
+        return future
+
+
+def _states_stage(task: AnimalTask):
+    """The animal's state models (states.csv and state_models.csv rows, the selected model)."""
+    from roamstat import states
+
+    return states.fit_animal_states(task.steps, task.cfg, animal_rng(task.cfg.seed, task.animal_id, "states"))
+
+
+def _with_states(result: AnimalResult, states) -> None:
+    result.states = states
+    if result.fitted is not None:
+        result.fitted.states = states.best  # the model the ``states`` null walks
 
 
 def _motion_stage(task: AnimalTask, located: pd.DataFrame, result: AnimalResult) -> None:

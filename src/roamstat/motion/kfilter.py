@@ -16,21 +16,27 @@ Cambridge University Press (prediction-error decomposition of the likelihood).
 """
 from __future__ import annotations
 
+import math
+
 import numba
 import numpy as np
 
 # floor on an innovation variance (m^2): only reached with zero location error at dt = 0
 MIN_VAR_M2 = 1e-9
+LOG_2PI = math.log(2.0 * math.pi)
 
 
-@numba.njit(cache=True)
-def forward(F, Q, r, observed, Y, P_first, update_first, store=True):
+@numba.njit(cache=True, nogil=True)
+def forward(F, Q, interval, r, observed, Y, P_first, update_first, store=True):
     """Run the filter through every time.
 
     Parameters
     ----------
-    F, Q : ndarray (n, 2, 2)
-        Transition and innovation covariance into time i (row 0 unused).
+    F, Q : ndarray (m, 2, 2)
+        Transition and innovation covariance over each distinct interval.
+    interval : ndarray of int (n,)
+        Row of F and Q that leads into time i (entry 0 unused): a fix schedule has few distinct
+        intervals, so the matrices are computed once per interval, not once per fix.
     r : ndarray (n,)
         Location-error variance per axis at each time.
     observed : ndarray of bool (n,)
@@ -65,7 +71,8 @@ def forward(F, Q, r, observed, Y, P_first, update_first, store=True):
     p00, p01, p11 = P_first[0, 0], P_first[0, 1], P_first[1, 1]
     for i in range(n):
         if i > 0:
-            f00, f01, f10, f11 = F[i, 0, 0], F[i, 0, 1], F[i, 1, 0], F[i, 1, 1]
+            d = interval[i]
+            f00, f01, f10, f11 = F[d, 0, 0], F[d, 0, 1], F[d, 1, 0], F[d, 1, 1]
             for c in range(k):
                 a, b = m[c, 0], m[c, 1]
                 m[c, 0] = f00 * a + f01 * b
@@ -75,9 +82,9 @@ def forward(F, Q, r, observed, Y, P_first, update_first, store=True):
             t01 = f00 * p01 + f01 * p11
             t10 = f10 * p00 + f11 * p01
             t11 = f10 * p01 + f11 * p11
-            p00, p01, p11 = (t00 * f00 + t01 * f01 + Q[i, 0, 0],
-                             t00 * f10 + t01 * f11 + Q[i, 0, 1],
-                             t10 * f10 + t11 * f11 + Q[i, 1, 1])
+            p00, p01, p11 = (t00 * f00 + t01 * f01 + Q[d, 0, 0],
+                             t00 * f10 + t01 * f11 + Q[d, 0, 1],
+                             t10 * f10 + t11 * f11 + Q[d, 1, 1])
         if store:
             mp[i] = m
             Pp[i, 0, 0], Pp[i, 0, 1], Pp[i, 1, 0], Pp[i, 1, 1] = p00, p01, p01, p11
@@ -97,7 +104,43 @@ def forward(F, Q, r, observed, Y, P_first, update_first, store=True):
     return V, S, mp, Pp, mf, Pf
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
+def innovation_loglik(V, S, profile):
+    """Gaussian log-likelihood of the innovations of times 1..n-1 on the first two columns of V.
+
+    With ``profile``, the third column holds the innovations of a column of ones: the mean position is
+    fitted first by generalised least squares (weights 1/S) and its share removed from each axis.
+
+    Returns
+    -------
+    loglik : float
+        -sum(ln 2 pi + ln S_i) - 0.5 sum_i sum_c V_ic^2 / S_i.
+    rel : ndarray (2,)
+        The profiled mean (0 without ``profile``).
+    """
+    n = V.shape[0]
+    rel = np.zeros(2)
+    if profile:
+        w_ones = w_x = w_y = 0.0
+        for i in range(1, n):
+            w = V[i, 2] / S[i]
+            w_ones += w * V[i, 2]
+            w_x += w * V[i, 0]
+            w_y += w * V[i, 1]
+        rel[0], rel[1] = w_x / w_ones, w_y / w_ones
+    # in blocks, so rounding grows with the block and block counts, not with n (as numpy's pairwise sum)
+    total = block = 0.0
+    for i in range(1, n):
+        u = V[i, 0] - (V[i, 2] * rel[0] if profile else 0.0)
+        v = V[i, 1] - (V[i, 2] * rel[1] if profile else 0.0)
+        block += LOG_2PI + math.log(S[i]) + 0.5 * (u * u + v * v) / S[i]
+        if i % 1024 == 0:
+            total += block
+            block = 0.0
+    return -(total + block), rel
+
+
+@numba.njit(cache=True, nogil=True)
 def backward(F, mp, Pp, mf, Pf):
     """Rauch-Tung-Striebel pass: smoothed means (n, k, 2) and covariances (n, 2, 2).
 

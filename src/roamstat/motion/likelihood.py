@@ -19,9 +19,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from .kalman import RANGE_RESIDENT, initial_cov, transition
-from .kfilter import forward
+from .kfilter import forward, innovation_loglik
 
-LOG_2PI = np.log(2.0 * np.pi)
 
 
 @dataclass(frozen=True)
@@ -64,12 +63,11 @@ def prepare_track(t_s, x_m, y_m, error_sd_m) -> Track:
                  np.column_stack([rel, np.ones(t.size)]))
 
 
-def track_transitions(name: str, p: dict, track: Track) -> tuple[np.ndarray, np.ndarray]:
-    """``transition(name, p, track.dt_s)``, computed once per distinct interval."""
+def track_transitions(name: str, p: dict, track: Track) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """F and Q once per distinct interval and the row of each fix (see :func:`roamstat.motion.kfilter.forward`)."""
     if track.dt_unique is None:
-        return transition(name, p, track.dt_s)
-    F, Q = transition(name, p, track.dt_unique)
-    return F[track.dt_index], Q[track.dt_index]
+        return (*transition(name, p, track.dt_s), np.arange(track.n))
+    return (*transition(name, p, track.dt_unique), track.dt_index)
 
 
 def error_variance(track: Track, p: dict) -> np.ndarray:
@@ -92,7 +90,7 @@ def conditional_loglik(name: str, p: dict, track: Track, mean_xy=None) -> tuple[
     mean_xy : array-like of 2, optional
         Fixed mean position (absolute metres) for a range-resident model; profiled when None.
     """
-    F, Q = track_transitions(name, p, track)
+    F, Q, interval = track_transitions(name, p, track)
     r = error_variance(track, p)
     resident = name in RANGE_RESIDENT
     P0 = initial_cov(name, p, r[0])
@@ -104,12 +102,9 @@ def conditional_loglik(name: str, p: dict, track: Track, mean_xy=None) -> tuple[
         mean = np.asarray(mean_xy, dtype=float)
         Y = track.xy - (mean - track.origin)
     observed = np.ones(track.n, dtype=np.bool_)
-    V, S, *_ = forward(F, Q, r, observed, np.ascontiguousarray(Y), P0, resident, False)
-    V, S = V[1:], S[1:]
-    if resident and mean_xy is None:
-        w1 = V[:, 2] / S
-        rel = (w1 @ V[:, :2]) / (w1 @ V[:, 2])  # GLS mean from the innovations of y and of 1
-        V = V[:, :2] - np.outer(V[:, 2], rel)
-        mean = rel + track.origin
-    loglik = -np.sum(LOG_2PI + np.log(S)) - 0.5 * np.sum(V[:, :2] ** 2 / S[:, None])
+    V, S, *_ = forward(F, Q, interval, r, observed, np.ascontiguousarray(Y), P0, resident, False)
+    profile = resident and mean_xy is None
+    loglik, rel = innovation_loglik(V, S, profile)
+    if profile:
+        mean = rel + track.origin  # GLS mean from the innovations of y and of 1
     return float(loglik), mean

@@ -14,7 +14,7 @@ from .kalman import initial_cov, transition
 _CHUNK = 256  # time steps of normal deviates drawn at once (memory stays flat)
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def _propagate(F, L, z0, z1, state, out):
     """Advance ``state`` (2, reps, axes) through each step, writing positions to ``out``."""
     for i in range(F.shape[0]):

@@ -59,7 +59,7 @@ def smooth(fit, t_s, x_m, y_m, error: LocationError, predict_t_s=None) -> pd.Dat
     r[observed] = r_obs[order[observed]]
     F, Q = transition(fit.name, fit.params, np.diff(times, prepend=times[:1]))
     P0 = initial_cov(fit.name, fit.params, r[0])
-    _, _, mp, Pp, mf, Pf = forward(F, Q, r, observed, Y, P0, fit.range_resident)
+    _, _, mp, Pp, mf, Pf = forward(F, Q, np.arange(times.size), r, observed, Y, P0, fit.range_resident)
     ms, Ps = backward(F, mp, Pp, mf, Pf)
     xy = ms[:, :, 0] + offset + track.origin
     return pd.DataFrame({"t_s": times, "x_m": xy[:, 0], "y_m": xy[:, 1],

@@ -13,7 +13,7 @@ import math
 
 from roamstat.nulls.analytic import expected_nsd
 from roamstat.nulls.observed import NO_SHORT_STEPS, ShortSteps
-from roamstat.nulls.walk import NullUnavailable, Walk
+from roamstat.nulls.walk import NullUnavailable, UnitTurns, Walk
 
 
 class CrwNull(Walk):
@@ -24,7 +24,7 @@ class CrwNull(Walk):
     fits : AnimalFits-like
         Needs ``best_step`` (a step model with ``sample``, ``mean``,
         ``second_moment``) and ``best_turn`` (a turn model with ``sample``,
-        ``mean_cos``, ``mean_sin``); ``note`` explains a missing one.
+        ``mean_cos``, ``mean_sin``, optionally ``sample_unit``); ``note`` explains a missing one.
     short : ShortSteps
         Observed steps at or below the fitting threshold, kept in proportion.
 
@@ -44,7 +44,9 @@ class CrwNull(Walk):
             missing = [what for what, model in (("step-length", step), ("turning-angle", turn)) if model is None]
             why = getattr(fits, "note", "") or "too few observations"
             raise NullUnavailable(f"no fitted {' or '.join(missing)} model ({why})")
-        super().__init__(short.wrap(step.sample), turn.sample)
+        # a turn model that gives cosines and sines directly (``sample_unit``) spares the walk its trigonometry
+        unit = getattr(turn, "sample_unit", None)
+        super().__init__(short.wrap(step.sample), turn.sample if unit is None else UnitTurns(turn.sample, unit))
         self._moments = short.moments(step.mean(), step.second_moment())
         self._turn = (turn.mean_cos(), turn.mean_sin())
 

@@ -15,7 +15,7 @@ from __future__ import annotations
 import numpy as np
 
 from roamstat.nulls.observed import NO_SHORT_STEPS, ShortSteps
-from roamstat.nulls.walk import NullUnavailable, Walk, resampler
+from roamstat.nulls.walk import NullUnavailable, Walk, resampler, turn_resampler
 
 
 class ShuffleNull(Walk):
@@ -42,7 +42,7 @@ class ShuffleNull(Walk):
         if turns.size == 0:
             raise NullUnavailable("no defined turning angles to resample")
         source = short.wrap(resampler(steps)) if steps.size else resampler(short.values)
-        super().__init__(source, resampler(turns))
+        super().__init__(source, turn_resampler(turns))
 
 
 def _finite(values) -> np.ndarray:

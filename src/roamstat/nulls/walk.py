@@ -9,11 +9,14 @@ of n independent draws.  :func:`simulate_nsd` walks ``n_reps`` replicates of
 Headings are the cumulative sum of the turns (the first turn sets the first
 heading; net displacement does not depend on the frame's orientation), and
 the position after k steps is the sum of l_j (cos Phi_j, sin Phi_j) for
-j <= k.  Only positions at the requested step indices are kept: one compiled
-pass per replicate (numba, releasing the GIL so that :mod:`roamstat.split`'s
-threads walk side by side) accumulates heading and position and records the
-squared distance at each requested index, so no per-step heading or position
-array is ever built.
+j <= k.  The heading is carried as a unit vector and turned by each turn's
+cosine and sine (a rotation), so a turn source that gives those directly
+(:class:`UnitTurns`: resampled turns, von Mises draws) costs no trigonometry
+per step; for plain angle sources they are computed in bulk.  Only positions
+at the requested step indices are kept: one compiled pass per replicate
+(numba, releasing the GIL so that :mod:`roamstat.split`'s threads walk side by
+side) accumulates heading and position and records the squared distance at
+each requested index, so no per-step heading or position array is ever built.
 """
 
 from __future__ import annotations
@@ -26,7 +29,28 @@ import numpy as np
 #: Steps walked per chunk (replicates x steps); ~16 MB per float64 work array.
 CHUNK_ELEMENTS = 2_000_000
 
+#: Steps between renormalisations of the heading vector (its length drifts by ~1e-16 per rotation).
+RENORMALISE = 4096
+
 Source = Callable[[int, np.random.Generator], np.ndarray]
+
+
+class UnitTurns:
+    """A turning-angle source that can also give the cosines and sines of its turns directly.
+
+    Parameters
+    ----------
+    angles : callable
+        ``(n, rng) -> ndarray`` of n turning angles (rad).
+    unit : callable
+        ``(n, rng) -> (cos, sin)`` of the angles ``angles`` would draw from the same generator state.
+    """
+
+    def __init__(self, angles: Source, unit: Callable[[int, np.random.Generator], tuple]):
+        self.angles, self.unit = angles, unit
+
+    def __call__(self, n: int, rng: np.random.Generator) -> np.ndarray:
+        return self.angles(n, rng)
 
 
 class NullUnavailable(Exception):
@@ -70,23 +94,31 @@ def simulate_nsd(step_source: Source, turn_source: Source, n_steps: int, n_reps:
     for first in range(0, n_reps, chunk):
         c = min(chunk, n_reps - first)
         steps = _block(step_source(c * m, rng), c, m)
-        turns = _block(turn_source(c * m, rng), c, m)
-        out[first:first + c, positive] = _walk_nsd(steps, turns, ends)
+        unit = getattr(turn_source, "unit", None)
+        if unit is None:
+            turns = _block(turn_source(c * m, rng), c, m)
+            cos_t, sin_t = np.cos(turns), np.sin(turns)
+        else:
+            cos_t, sin_t = (_block(v, c, m) for v in unit(c * m, rng))
+        out[first:first + c, positive] = _walk_nsd(steps, cos_t, sin_t, ends)
     return out
 
 
 @numba.njit(cache=True, nogil=True)
-def _walk_nsd(steps, turns, ends):
+def _walk_nsd(steps, cos_t, sin_t, ends):
     """Squared distance from the start after ``ends[j]`` steps, per replicate (row)."""
     c, m = steps.shape
     out = np.empty((c, ends.size))
     for r in range(c):
-        heading = x = y = 0.0
+        hx, hy, x, y = 1.0, 0.0, 0.0, 0.0
         j = 0
         for i in range(m):
-            heading += turns[r, i]
-            x += steps[r, i] * np.cos(heading)
-            y += steps[r, i] * np.sin(heading)
+            hx, hy = hx * cos_t[r, i] - hy * sin_t[r, i], hx * sin_t[r, i] + hy * cos_t[r, i]
+            if i % RENORMALISE == RENORMALISE - 1:  # rounding would slowly change the vector's length
+                norm = np.sqrt(hx * hx + hy * hy)
+                hx, hy = hx / norm, hy / norm
+            x += steps[r, i] * hx
+            y += steps[r, i] * hy
             while j < ends.size and ends[j] == i + 1:
                 out[r, j] = x * x + y * y
                 j += 1
@@ -131,6 +163,18 @@ def resampler(values) -> Source:
         return values[rng.integers(0, values.size, n)]
 
     return draw
+
+
+def turn_resampler(values) -> UnitTurns:
+    """Turning angles drawn with replacement from observed ones, their cosines and sines computed once."""
+    values = np.asarray(values, dtype=np.float64)
+    cos_v, sin_v = np.cos(values), np.sin(values)
+
+    def unit(n: int, rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray]:
+        pick = rng.integers(0, values.size, n)  # the draw resampler(values) makes
+        return cos_v[pick], sin_v[pick]
+
+    return UnitTurns(resampler(values), unit)
 
 
 def mixture(p_second: float, first: Source, second: Source) -> Source:
