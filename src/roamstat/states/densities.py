@@ -74,7 +74,7 @@ def turn_constants(family: str, conc: np.ndarray) -> tuple[np.ndarray, np.ndarra
     return _LOG_2PI - np.log(q * (1.0 + conc)), q
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def slot_terms(step_kind, x, log_x, turn_ok, turn, cos_t, sin_t, weibull, shape, scale, step_norm, step_slope,
                has_zero, log_zero, log_moving, cauchy, mu, conc, turn_norm, turn_slope, gradient):
     """Log densities of every slot's step and turn under every state, and their derivatives.

@@ -10,7 +10,8 @@ forward vector is normalised to sum 1 and the log of the normaliser summed,
 after the slot's largest log density has been taken out, so nothing under-
 or overflows.  Viterbi works on log probabilities (ibid., §5.4.2).  Compiled
 with numba: the recursion is sequential in time and K is small, so a Python
-loop would cost more than everything else in a fit.
+loop would cost more than everything else in a fit.  The kernels release the GIL
+(``nogil``): a big animal's states fit runs on a thread beside its other stages.
 
 References
 ----------
@@ -24,7 +25,7 @@ import numba
 import numpy as np
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def forward_loglik(logp, restart, delta, gamma):
     """Log-likelihood of the chain (sum over segments).
 
@@ -65,7 +66,7 @@ def forward_loglik(logp, restart, delta, gamma):
     return ll
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def forward_backward(logp, restart, delta, gamma):
     """Log-likelihood and normalised forward and backward vectors.
 
@@ -84,7 +85,7 @@ def forward_backward(logp, restart, delta, gamma):
     return ll, alpha, prior, beta
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def _forward_backward(logp, restart, delta, gamma):
     """:func:`forward_backward`'s four values, then ``dens`` (S, K) = exp(logp - max over k of logp)."""
     n, k = logp.shape
@@ -134,7 +135,7 @@ def _forward_backward(logp, restart, delta, gamma):
     return ll, alpha, prior, beta, dens
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def viterbi(logp, restart, delta, gamma):
     """Most probable state sequence (0-based state indices), per segment."""
     n, k = logp.shape
@@ -164,7 +165,7 @@ def viterbi(logp, restart, delta, gamma):
     return path
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def posterior_sums(logp, restart, delta, gamma, deriv):
     """Log-likelihood and the posterior expectations its exact gradient needs.
 
