@@ -65,7 +65,7 @@ def prepare_track(t_s, x_m, y_m, error_sd_m) -> Track:
 
 def track_transitions(name: str, p: dict, track: Track) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """F and Q once per distinct interval and the row of each fix (see :func:`roamstat.motion.kfilter.forward`)."""
-    if track.dt_unique is None:
+    if track.dt_unique is None or track.dt_index is None:
         return (*transition(name, p, track.dt_s), np.arange(track.n))
     return (*transition(name, p, track.dt_unique), track.dt_index)
 
