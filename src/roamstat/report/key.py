@@ -101,5 +101,5 @@ def key_html(entries) -> str:
 
 
 def key_text(entries) -> str:
-    """The key in words for an image's alt text: "Key: observed (black line); null mean (grey dashed)"."""
+    """The key in words for an image's alt text, e.g. ``Key: observed (line); null mean (dashed).``"""
     return ("Key: " + "; ".join(f"{e.label} ({e.mark})" for e in entries) + ".") if entries else ""
