@@ -201,11 +201,11 @@ def von_mises_draws(mu: float, kappa: float, n: int, rng: np.random.Generator) -
     Best, D. J. & Fisher, N. I. (1979). Applied Statistics 28: 152-157.
     """
     if kappa <= 0.0:
-        return _wrapped(rng.uniform(-math.pi, math.pi, n))
+        return wrap_angle(rng.uniform(-math.pi, math.pi, n))
     if kappa > KAPPA_NORMAL:
-        return _wrapped(rng.normal(mu, 1.0 / math.sqrt(kappa), n))
+        return wrap_angle(rng.normal(mu, 1.0 / math.sqrt(kappa), n))
     cos_off, sign = _best_fisher_draws(kappa, int(n), rng)
-    return _wrapped(mu + sign * np.arccos(cos_off))
+    return wrap_angle(mu + sign * np.arccos(cos_off))
 
 
 def von_mises_unit(mu: float, kappa: float, n: int, rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray]:
@@ -260,15 +260,6 @@ def _best_fisher(kappa, r, u, cos_off, sign, filled):
         else:
             j += 2
     return filled
-
-
-@numba.njit(cache=True, nogil=True)
-def _wrapped(a):
-    """``a`` wrapped in place to (-pi, pi] (the convention of :func:`roamstat.track.wrap_angle`)."""
-    for i in range(a.size):
-        w = math.pi - (math.pi - a[i]) % TWO_PI
-        a[i] = w + TWO_PI if w <= -math.pi else w  # the modulo can round up to exactly 2 pi
-    return a
 
 
 def fit_von_mises(x: np.ndarray) -> VonMisesTurns:

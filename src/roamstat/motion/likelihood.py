@@ -34,9 +34,9 @@ class Track:
     error_var: np.ndarray | None  # (n,) known per-axis error variance, None = estimated
     # the distinct intervals and each fix's one: a fix schedule has few, so every likelihood
     # evaluation computes the transitions once per distinct interval, not once per fix
-    dt_unique: np.ndarray | None = None
-    dt_index: np.ndarray | None = None
-    xy1: np.ndarray | None = None  # (n, 3) positions and a column of ones (the profiled mean)
+    dt_unique: np.ndarray
+    dt_index: np.ndarray
+    xy1: np.ndarray  # (n, 3) positions and a column of ones (the profiled mean)
 
     @property
     def n(self) -> int:
@@ -65,8 +65,6 @@ def prepare_track(t_s, x_m, y_m, error_sd_m) -> Track:
 
 def track_transitions(name: str, p: dict, track: Track) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """F and Q once per distinct interval and the row of each fix (see :func:`roamstat.motion.kfilter.forward`)."""
-    if track.dt_unique is None or track.dt_index is None:
-        return (*transition(name, p, track.dt_s), np.arange(track.n))
     return (*transition(name, p, track.dt_unique), track.dt_index)
 
 
@@ -97,7 +95,7 @@ def conditional_loglik(name: str, p: dict, track: Track, mean_xy=None) -> tuple[
     if not resident:
         Y, mean = track.xy, np.full(2, np.nan)
     elif mean_xy is None:
-        Y = track.xy1 if track.xy1 is not None else np.column_stack([track.xy, np.ones(track.n)])
+        Y = track.xy1
     else:
         mean = np.asarray(mean_xy, dtype=float)
         Y = track.xy - (mean - track.origin)
