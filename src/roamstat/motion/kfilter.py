@@ -141,18 +141,19 @@ def innovation_loglik(V, S, profile):
 
 
 @numba.njit(cache=True, nogil=True)
-def backward(F, mp, Pp, mf, Pf):
-    """Rauch-Tung-Striebel pass: smoothed means (n, k, 2) and covariances (n, 2, 2).
+def backward(F, interval, mp, Pp, mf, Pf):
+    """Rauch-Tung-Striebel pass, in place: ``mf`` and ``Pf`` become the smoothed means (n, k, 2) and
+    covariances (n, 2, 2) (``F`` and ``interval`` as in :func:`forward`).
 
-    The pseudo-inverse of the predicted covariance covers the models whose velocity state is
-    identically zero (brownian, ou), where that covariance is singular.
+    In place because time i's filtered moments are read only when time i is smoothed, after time
+    i + 1: on a 2,000,000-fix track the copies would cost 130 MB.  The pseudo-inverse of the
+    predicted covariance covers the models whose velocity state is identically zero (brownian,
+    ou), where that covariance is singular.
     """
     n, k = mf.shape[0], mf.shape[1]
-    ms = mf.copy()
-    Ps = Pf.copy()
     for i in range(n - 2, -1, -1):
-        G = Pf[i] @ F[i + 1].T @ np.linalg.pinv(Pp[i + 1])
+        G = Pf[i] @ F[interval[i + 1]].T @ np.linalg.pinv(Pp[i + 1])
         for c in range(k):
-            ms[i, c] = mf[i, c] + G @ (ms[i + 1, c] - mp[i + 1, c])
-        Ps[i] = Pf[i] + G @ (Ps[i + 1] - Pp[i + 1]) @ G.T
-    return ms, Ps
+            mf[i, c] = mf[i, c] + G @ (mf[i + 1, c] - mp[i + 1, c])
+        Pf[i] = Pf[i] + G @ (Pf[i + 1] - Pp[i + 1]) @ G.T
+    return mf, Pf

@@ -57,10 +57,12 @@ def smooth(fit, t_s, x_m, y_m, error: LocationError, predict_t_s=None) -> pd.Dat
     Y[observed] = (track.xy - offset)[order[observed]]
     r = np.zeros(times.size)
     r[observed] = r_obs[order[observed]]
-    F, Q = transition(fit.name, fit.params, np.diff(times, prepend=times[:1]))
+    # F and Q once per distinct interval, as in the likelihood: a schedule has few of them
+    dt_unique, interval = np.unique(np.diff(times, prepend=times[:1]), return_inverse=True)
+    F, Q = transition(fit.name, fit.params, dt_unique)
     P0 = initial_cov(fit.name, fit.params, r[0])
-    _, _, mp, Pp, mf, Pf = forward(F, Q, np.arange(times.size), r, observed, Y, P0, fit.range_resident)
-    ms, Ps = backward(F, mp, Pp, mf, Pf)
+    _, _, mp, Pp, mf, Pf = forward(F, Q, interval, r, observed, Y, P0, fit.range_resident)
+    ms, Ps = backward(F, interval, mp, Pp, mf, Pf)
     xy = ms[:, :, 0] + offset + track.origin
     return pd.DataFrame({"t_s": times, "x_m": xy[:, 0], "y_m": xy[:, 1],
                          "se_m": np.sqrt(np.maximum(Ps[:, 0, 0], 0.0)), "predicted": ~observed})
