@@ -107,8 +107,8 @@ def loglik_gradient(theta, shape, scale, conc, step_norm, step_slope, turn_norm,
     # forward: alpha[t] = Pr(C_t | x up to t); dens[t] = f(x_t | C_t) / max over states
     alpha = np.empty((n, k))
     dens = np.empty((n, k))
+    prior = np.empty((n, k))  # Pr(C_t | x before t), as forward_backward keeps it
     lp = np.empty(k)
-    prior = np.empty(k)
     ll, product = 0.0, 1.0
     for t in range(n):
         top = -np.inf
@@ -122,11 +122,12 @@ def loglik_gradient(theta, shape, scale, conc, step_norm, step_slope, turn_norm,
         ll += top
         for j in range(k):
             dens[t, j] = np.exp(lp[j] - top)
-        total = forward_step(alpha[t - 1], restart[t], delta, gamma, dens[t], prior, alpha[t])
+        total = forward_step(t, restart[t], delta, gamma, dens, prior, alpha)
         if total <= 0.0 or not np.isfinite(total):
             return -np.inf, grad
+        scale_t = 1.0 / total
         for j in range(k):
-            alpha[t, j] /= total
+            alpha[t, j] *= scale_t
         if total < _TINY:
             ll += np.log(total)
         else:
@@ -149,8 +150,9 @@ def loglik_gradient(theta, shape, scale, conc, step_norm, step_slope, turn_norm,
         for j in range(k):
             local[j] = alpha[t, j] * beta[j]
             total += local[j]
+        scale_t = 1.0 / total
         for j in range(k):
-            w = local[j] / total
+            w = local[j] * scale_t
             d_shape, d_scale, d_zero = step_slopes(step_kind[t], x[t], log_x[t], tab, j, weibull, has_zero)
             sums[0, j] += w * d_shape
             sums[1, j] += w * d_scale
@@ -161,7 +163,7 @@ def loglik_gradient(theta, shape, scale, conc, step_norm, step_slope, turn_norm,
                 sums[3, j] += w * d_conc
         if restart[t]:
             for j in range(k):
-                first[j] += local[j] / total
+                first[j] += local[j] * scale_t
                 beta[j] = 1.0  # the previous slot ends a segment
             continue
         for j in range(k):
@@ -175,8 +177,9 @@ def loglik_gradient(theta, shape, scale, conc, step_norm, step_slope, turn_norm,
             total += b
             xi_total += alpha[t - 1, i] * b
         for i in range(k):
+            a = alpha[t - 1, i] / xi_total
             for j in range(k):
-                counts[i, j] += alpha[t - 1, i] * gamma[i, j] * carried[j] / xi_total
+                counts[i, j] += a * gamma[i, j] * carried[j]
         for i in range(k):
             beta[i] = back[i] / total
 

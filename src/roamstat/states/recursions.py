@@ -66,12 +66,12 @@ def forward_loglik(logp, restart, delta, gamma):
     return ll
 
 
-@numba.njit(cache=True, nogil=True)
-def forward_step(previous, restart, delta, gamma, dens, prior, alpha):
-    """One slot of the scaled forward recursion; returns the normaliser (alpha is left unnormalised).
+@numba.njit(cache=True, nogil=True, inline="always")
+def forward_step(t, restart, delta, gamma, dens, prior, alpha):
+    """Slot ``t`` of the scaled forward recursion on (S, K) tables; returns the normaliser.
 
-    ``prior`` = ``delta`` at a restart, else ``previous`` Gamma (``previous`` the
-    normalised forward vector of the slot before); ``alpha`` = ``prior`` x ``dens``.
+    ``prior[t]`` = ``delta`` at a restart, else ``alpha[t - 1]`` Gamma (already
+    normalised); ``alpha[t]`` = ``prior[t]`` x ``dens[t]``, left unnormalised.
     """
     k = delta.size
     total = 0.0
@@ -81,10 +81,10 @@ def forward_step(previous, restart, delta, gamma, dens, prior, alpha):
         else:
             p = 0.0
             for i in range(k):
-                p += previous[i] * gamma[i, j]
-        prior[j] = p
-        alpha[j] = p * dens[j]
-        total += alpha[j]
+                p += alpha[t - 1, i] * gamma[i, j]
+        prior[t, j] = p
+        alpha[t, j] = p * dens[t, j]
+        total += alpha[t, j]
     return total
 
 
@@ -117,7 +117,7 @@ def forward_backward(logp, restart, delta, gamma):
         for j in range(k):
             dens[t, j] = np.exp(logp[t, j] - m)
     for t in range(n):
-        total = forward_step(alpha[t - 1], restart[t], delta, gamma, dens[t], prior[t], alpha[t])
+        total = forward_step(t, restart[t], delta, gamma, dens, prior, alpha)
         if total <= 0.0 or not np.isfinite(total):
             return -np.inf, alpha, prior, beta
         ll += np.log(total)
