@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 import pytest
 from scipy import special, stats
+from states_sim import TWO_STATES, observed_steps
 
 from roamstat.states.chain import Chain, build_chain
 from roamstat.states.densities import POSITIVE, state_table, step_constants, step_slopes, turn_constants, turn_slopes
@@ -187,3 +188,17 @@ def test_loglik_gradient_equals_central_differences(step, turn):
             numeric = np.array([(obs.loglik(layout.unpack(free + e)) - obs.loglik(layout.unpack(free - e))) / (2 * H)
                                 for e in np.eye(layout.size) * H])
             np.testing.assert_allclose(grad, numeric, rtol=1e-6, atol=1e-6)
+
+
+def test_fused_loglik_equals_forward_algorithm_on_a_long_chain():
+    # reference: the scaled forward algorithm on the tabulated log densities (Zucchini et al. 2016, §3.2);
+    # 3,000 slots, so the fused pass's product of normalisers is logged and reset many times
+    rng = np.random.default_rng(41)
+    steps, _ = observed_steps(TWO_STATES, 3000, rng, missed=0.05)
+    obs = Observations(build_chain(steps))
+    for k in (2, 3):
+        layout = Layout(k, "gamma", "von_mises", zero_mass=False)
+        free = rng.normal(0.0, 0.5, layout.size)
+        free[k:2 * k] = np.log(rng.uniform(30.0, 300.0, k))
+        ll, _ = obs.loglik_and_gradient(layout, free)
+        assert ll < -1000.0 and ll == pytest.approx(obs.loglik(layout.unpack(free)), rel=1e-12)

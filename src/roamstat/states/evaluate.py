@@ -176,12 +176,12 @@ def loglik_gradient(theta, shape, scale, conc, step_norm, step_slope, turn_norm,
             back[i] = b
             total += b
             xi_total += alpha[t - 1, i] * b
+        xi_scale, beta_scale = 1.0 / xi_total, 1.0 / total
         for i in range(k):
-            a = alpha[t - 1, i] / xi_total
+            a = alpha[t - 1, i] * xi_scale
             for j in range(k):
                 counts[i, j] += a * gamma[i, j] * carried[j]
-        for i in range(k):
-            beta[i] = back[i] / total
+            beta[i] = back[i] * beta_scale
 
     # assemble in the layout's order: shape, scale, mu, concentration, transition logits, zero mass
     for j in range(k):

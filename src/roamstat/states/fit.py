@@ -16,8 +16,8 @@ A one-state model is fitted from one start only, the first (for K = 1 its
 step law from the moments of the steps): with one state the likelihood
 separates into the step law, the turn law and the zero mass, each of which
 has a single maximum (gamma and Weibull: the profile likelihood of the shape
-is unimodal, Johnson, Kotz & Balakrishnan 1994, §17.7 and §21.4, from memory;
-von Mises: Mardia & Jupp 2000, §5.3.1; wrapped Cauchy: Kent & Tyler 1988;
+is unimodal, Johnson, Kotz & Balakrishnan 1994, chapters 17 and 21; von Mises:
+Mardia & Jupp 2000, §5.3.1; both from memory; wrapped Cauchy: Kent & Tyler 1988;
 the zero mass: a binomial proportion), so further starts only find it again.
 It reports ``n_starts = n_best_starts = 1``.
 
