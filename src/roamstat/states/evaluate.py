@@ -17,6 +17,11 @@ same -inf rule), only fused: no (S, K) table of log densities, derivatives or
 backward vectors is kept, and the forward normalisers are multiplied together
 and their log taken only when the product grows small.
 
+numba caches this module's compiled code against this file's timestamp only:
+after editing :mod:`~roamstat.states.densities` or
+:mod:`~roamstat.states.recursions`, touch this file (or clear its
+``__pycache__``) so the pass is compiled again with the new functions.
+
 References
 ----------
 Zucchini, W., MacDonald, I. L. & Langrock, R. (2016). Hidden Markov Models
@@ -107,7 +112,7 @@ def loglik_gradient(theta, shape, scale, conc, step_norm, step_slope, turn_norm,
     # forward: alpha[t] = Pr(C_t | x up to t); dens[t] = f(x_t | C_t) / max over states
     alpha = np.empty((n, k))
     dens = np.empty((n, k))
-    prior = np.empty((n, k))  # Pr(C_t | x before t), as forward_backward keeps it
+    prior = np.empty((n, k))  # filled by forward_step (Pr(C_t | x before t)); not needed here
     lp = np.empty(k)
     ll, product = 0.0, 1.0
     for t in range(n):

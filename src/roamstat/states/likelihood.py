@@ -41,7 +41,7 @@ class Observations:
         self.step_pos = chain.step_m[self.pos]
         self.turn_obs = chain.turn_rad[self.turns]
         self.n_slots = chain.n_slots
-        # per-slot inputs of the compiled pass (densities.slot_terms), computed once
+        # per-slot inputs of the compiled passes (densities.slot_terms, evaluate.loglik_gradient), computed once
         self._step_kind = np.full(self.n_slots, MISSING, np.int8)
         self._step_kind[self.pos] = POSITIVE
         self._step_kind[self.zeros] = ZERO
