@@ -15,8 +15,10 @@ import numpy as np
 import pandas as pd
 import pytest
 from scipy import special, stats
+from states_sim import TWO_STATES, observed_steps
 
 from roamstat.states.chain import Chain, build_chain
+from roamstat.states.densities import POSITIVE, state_table, step_constants, step_slopes, turn_constants, turn_slopes
 from roamstat.states.likelihood import Observations
 from roamstat.states.params import HmmParams, Layout
 
@@ -52,6 +54,19 @@ def _steps_turns(rng, n=60):
     theta = rng.uniform(-np.pi, np.pi, n)
     theta[:3] = [0.0, np.pi, -np.pi]
     return x, theta
+
+
+def _slopes(x, theta, p: HmmParams) -> np.ndarray:
+    """Derivatives (4, S, K) of the compiled per-slot functions: log shape, log scale, mu, free concentration."""
+    weibull, cauchy = p.step_family == "weibull", p.turn_family == "wrapped_cauchy"
+    tab = state_table(p.shape, p.scale, np.empty(0), p.mu, p.conc, *step_constants(p.step_family, p.shape, p.scale),
+                      *turn_constants(p.turn_family, p.conc))
+    out = np.empty((4, x.size, p.n_states))
+    for t in range(x.size):
+        for j in range(p.n_states):
+            out[:2, t, j] = step_slopes(POSITIVE, x[t], np.log(x[t]), tab, j, weibull, False)[:2]
+            out[2:, t, j] = turn_slopes(theta[t], np.cos(theta[t]), np.sin(theta[t]), tab, j, cauchy)
+    return out
 
 
 def _turn_ref(turn, theta, mu, conc):
@@ -115,7 +130,6 @@ def test_density_derivatives_equal_central_differences_of_scipy(step, turn):
     x, theta = _steps_turns(rng, 30)
     x = x[(x > 1.0) & (x < 3000.0)]
     theta = theta[: x.size]
-    obs = Observations(_chain(x, theta))
     layout = Layout(2, step, turn, zero_mass=False)
     for _ in range(8):
         shape = np.exp(rng.uniform(np.log(0.2), np.log(20.0), 2))
@@ -124,7 +138,7 @@ def test_density_derivatives_equal_central_differences_of_scipy(step, turn):
         conc = np.exp(rng.uniform(np.log(0.01), np.log(50.0), 2)) if turn == "von_mises" else rng.uniform(0.01, 0.95, 2)
         p = _params(step, turn, shape, scale, mu, conc)
         theta_free = layout.pack(p)
-        _, _, deriv = obs._terms(layout.unpack(theta_free), gradient=True)
+        deriv = _slopes(x, theta, layout.unpack(theta_free))
 
         def ref(v):
             q = layout.unpack(v)
@@ -174,3 +188,17 @@ def test_loglik_gradient_equals_central_differences(step, turn):
             numeric = np.array([(obs.loglik(layout.unpack(free + e)) - obs.loglik(layout.unpack(free - e))) / (2 * H)
                                 for e in np.eye(layout.size) * H])
             np.testing.assert_allclose(grad, numeric, rtol=1e-6, atol=1e-6)
+
+
+def test_fused_loglik_equals_forward_algorithm_on_a_long_chain():
+    # reference: the scaled forward algorithm on the tabulated log densities (Zucchini et al. 2016, §3.2);
+    # 3,000 slots, so the fused pass's product of normalisers is logged and reset many times
+    rng = np.random.default_rng(41)
+    steps, _ = observed_steps(TWO_STATES, 3000, rng, missed=0.05)
+    obs = Observations(build_chain(steps))
+    for k in (2, 3):
+        layout = Layout(k, "gamma", "von_mises", zero_mass=False)
+        free = rng.normal(0.0, 0.5, layout.size)
+        free[k:2 * k] = np.log(rng.uniform(30.0, 300.0, k))
+        ll, _ = obs.loglik_and_gradient(layout, free)
+        assert ll < -1000.0 and ll == pytest.approx(obs.loglik(layout.unpack(free)), rel=1e-12)

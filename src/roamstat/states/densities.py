@@ -1,14 +1,16 @@
 """Step and turn log densities of every slot and state, with their exact derivatives.
 
-One compiled pass (numba, like :mod:`roamstat.states.recursions`) gives, per
-slot and state, the log density of the step and of the turning angle and, on
-request, their derivatives with respect to the state's free parameters
+Compiled per-slot, per-state functions (numba, like :mod:`roamstat.states.recursions`)
+give the log density of a slot's step and of its turning angle and their
+derivatives with respect to the state's free parameters
 (:mod:`roamstat.states.params`): log shape and log scale of the step, the mean
 direction mu and the free concentration (log kappa or logit rho) of the turn.
+:func:`slot_terms` tabulates the densities for a whole chain; the likelihood
+pass of :mod:`roamstat.states.evaluate` calls the same functions slot by slot.
 The per-state constants that need special functions (log-gamma and digamma of
 the gamma shape, log I0 and A(kappa) = I1(kappa) / I0(kappa) of the von Mises
-concentration) are computed once per call for the K states, in numpy and
-scipy.special, and handed to the pass.
+concentration) are computed once per evaluation for the K states, in numpy and
+scipy.special, and handed on in :func:`state_table`.
 
 Densities (x > 0 a step, theta a turn, d = theta - mu):
 
@@ -74,10 +76,88 @@ def turn_constants(family: str, conc: np.ndarray) -> tuple[np.ndarray, np.ndarra
     return _LOG_2PI - np.log(q * (1.0 + conc)), q
 
 
+#: Rows of the per-state table of :func:`state_table`.
+(SHAPE, LOG_SCALE, INV_SCALE, STEP_NORM, STEP_SLOPE, LOG_ZERO, LOG_MOVING, ZERO, MU, COS_MU, SIN_MU, CONC,
+ TURN_NORM, TURN_SLOPE) = range(14)
+
+
 @numba.njit(cache=True, nogil=True)
-def slot_terms(step_kind, x, log_x, turn_ok, turn, cos_t, sin_t, weibull, shape, scale, step_norm, step_slope,
-               has_zero, log_zero, log_moving, cauchy, mu, conc, turn_norm, turn_slope, gradient):
-    """Log densities of every slot's step and turn under every state, and their derivatives.
+def state_table(shape, scale, zero, mu, conc, step_norm, step_slope, turn_norm, turn_slope):
+    """Per-state inputs of the slot terms, shape (14, K), rows named by this module's constants.
+
+    ``zero`` is the zero mass per state, or an empty array without one (log z_k and
+    log(1 - z_k) are then 0).
+    """
+    k = shape.size
+    tab = np.zeros((14, k))
+    for j in range(k):
+        tab[SHAPE, j], tab[LOG_SCALE, j], tab[INV_SCALE, j] = shape[j], np.log(scale[j]), 1.0 / scale[j]
+        tab[STEP_NORM, j], tab[STEP_SLOPE, j] = step_norm[j], step_slope[j]
+        if zero.size:
+            tab[LOG_ZERO, j], tab[LOG_MOVING, j], tab[ZERO, j] = np.log(zero[j]), np.log1p(-zero[j]), zero[j]
+        tab[MU, j], tab[COS_MU, j], tab[SIN_MU, j] = mu[j], np.cos(mu[j]), np.sin(mu[j])
+        tab[CONC, j], tab[TURN_NORM, j], tab[TURN_SLOPE, j] = conc[j], turn_norm[j], turn_slope[j]
+    return tab
+
+
+@numba.njit(cache=True, nogil=True)
+def step_term(kind, x, log_x, tab, j, weibull):
+    """Log density of one slot's step under state ``j`` (0 if missing)."""
+    if kind == ZERO:
+        return tab[LOG_ZERO, j]
+    if kind == MISSING:
+        return 0.0
+    a = tab[SHAPE, j]
+    if weibull:
+        lz = log_x - tab[LOG_SCALE, j]
+        return a * lz - log_x - np.exp(a * lz) - tab[STEP_NORM, j] + tab[LOG_MOVING, j]
+    return (a - 1.0) * log_x - x * tab[INV_SCALE, j] - tab[STEP_NORM, j] + tab[LOG_MOVING, j]
+
+
+@numba.njit(cache=True, nogil=True)
+def step_slopes(kind, x, log_x, tab, j, weibull, has_zero):
+    """d step_term / d (log shape, log scale, logit z) for one slot and state (0 if missing)."""
+    d_zero = 0.0
+    if has_zero and kind != MISSING:
+        d_zero = 1.0 - tab[ZERO, j] if kind == ZERO else -tab[ZERO, j]
+    if kind != POSITIVE:
+        return 0.0, 0.0, d_zero
+    a = tab[SHAPE, j]
+    if weibull:
+        lz = log_x - tab[LOG_SCALE, j]
+        zk = np.exp(a * lz)
+        return 1.0 + a * lz * (1.0 - zk), a * (zk - 1.0), d_zero
+    return a * (log_x - tab[LOG_SCALE, j] - tab[STEP_SLOPE, j]), x * tab[INV_SCALE, j] - a, d_zero
+
+
+@numba.njit(cache=True, nogil=True)
+def turn_term(turn, cos_t, sin_t, tab, j, cauchy):
+    """Log density of one slot's observed turn under state ``j``."""
+    if cauchy:
+        rho, q = tab[CONC, j], tab[TURN_SLOPE, j]
+        sh = np.sin(0.5 * (turn - tab[MU, j]))
+        return -tab[TURN_NORM, j] - np.log(q * q + 4.0 * rho * sh * sh)
+    c = cos_t * tab[COS_MU, j] + sin_t * tab[SIN_MU, j]
+    return tab[CONC, j] * (c - 1.0) - tab[TURN_NORM, j]
+
+
+@numba.njit(cache=True, nogil=True)
+def turn_slopes(turn, cos_t, sin_t, tab, j, cauchy):
+    """d turn_term / d (mu, free concentration) for one slot's observed turn and state ``j``."""
+    if cauchy:
+        rho, q = tab[CONC, j], tab[TURN_SLOPE, j]
+        h = 0.5 * (turn - tab[MU, j])
+        sh, ch = np.sin(h), np.cos(h)
+        d = q * q + 4.0 * rho * sh * sh
+        return 4.0 * rho * sh * ch / d, -2.0 * rho * rho / (1.0 + rho) - rho * q * (4.0 * sh * sh - 2.0 * q) / d
+    kappa = tab[CONC, j]
+    c = cos_t * tab[COS_MU, j] + sin_t * tab[SIN_MU, j]
+    return kappa * (sin_t * tab[COS_MU, j] - cos_t * tab[SIN_MU, j]), kappa * (c - tab[TURN_SLOPE, j])
+
+
+@numba.njit(cache=True, nogil=True)
+def slot_terms(step_kind, x, log_x, turn_ok, turn, cos_t, sin_t, tab, weibull, cauchy):
+    """Log densities of every slot's step and turn under every state.
 
     Parameters
     ----------
@@ -89,81 +169,26 @@ def slot_terms(step_kind, x, log_x, turn_ok, turn, cos_t, sin_t, weibull, shape,
         Whether the turning angle is observed.
     turn, cos_t, sin_t : ndarray (S,)
         Turning angle, its cosine and sine (any value where missing).
-    weibull : bool
-        Weibull steps (else gamma).
-    shape, scale, step_norm, step_slope : ndarray (K,)
-        Step parameters and :func:`step_constants`.
-    has_zero : bool
-        Whether the states have a zero mass z_k.
-    log_zero, log_moving : ndarray (K,)
-        log z_k and log(1 - z_k) (both 0 without a zero mass).
-    cauchy : bool
-        Wrapped Cauchy turns (else von Mises).
-    mu, conc, turn_norm, turn_slope : ndarray (K,)
-        Turn parameters and :func:`turn_constants`.
-    gradient : bool
-        Whether to fill the derivatives.
+    tab : ndarray (14, K)
+        :func:`state_table`.
+    weibull, cauchy : bool
+        Weibull steps (else gamma); wrapped Cauchy turns (else von Mises).
 
     Returns
     -------
     step_lp, turn_lp : ndarray (S, K)
         Log densities (0 where missing).
-    deriv : ndarray (5, S, K)
-        d step_lp / d log shape, d step_lp / d log scale, d turn_lp / d mu,
-        d turn_lp / d free concentration, d step_lp / d logit z (1 - z at a
-        zero step, -z at a positive one; 0 without a zero mass), all 0 where
-        missing; shape (5, 0, K) when ``gradient`` is False.
     """
-    n, k = x.size, shape.size
+    n, k = x.size, tab.shape[1]
     step_lp = np.zeros((n, k))
     turn_lp = np.zeros((n, k))
-    deriv = np.zeros((5, n if gradient else 0, k))
-    zero = np.exp(log_zero) if has_zero else np.zeros(k)
-    log_scale = np.log(scale)
-    cos_mu, sin_mu = np.cos(mu), np.sin(mu)
     for t in range(n):
-        kind = step_kind[t]
         for j in range(k):
-            if kind == ZERO:
-                step_lp[t, j] = log_zero[j]
-                if gradient and has_zero:
-                    deriv[4, t, j] = 1.0 - zero[j]
-            elif kind == POSITIVE:
-                if gradient and has_zero:
-                    deriv[4, t, j] = -zero[j]
-                a = shape[j]
-                if weibull:
-                    lz = log_x[t] - log_scale[j]
-                    zk = np.exp(a * lz)
-                    step_lp[t, j] = a * lz - log_x[t] - zk - step_norm[j] + log_moving[j]
-                    if gradient:
-                        deriv[0, t, j] = 1.0 + a * lz * (1.0 - zk)
-                        deriv[1, t, j] = a * (zk - 1.0)
-                else:
-                    r = x[t] / scale[j]
-                    step_lp[t, j] = (a - 1.0) * log_x[t] - r - step_norm[j] + log_moving[j]
-                    if gradient:
-                        deriv[0, t, j] = a * (log_x[t] - log_scale[j] - step_slope[j])
-                        deriv[1, t, j] = r - a
-            if not turn_ok[t]:
-                continue
-            if cauchy:
-                rho, q = conc[j], turn_slope[j]
-                h = 0.5 * (turn[t] - mu[j])
-                sh, ch = np.sin(h), np.cos(h)
-                d = q * q + 4.0 * rho * sh * sh
-                turn_lp[t, j] = -turn_norm[j] - np.log(d)
-                if gradient:
-                    deriv[2, t, j] = 4.0 * rho * sh * ch / d
-                    deriv[3, t, j] = -2.0 * rho * rho / (1.0 + rho) - rho * q * (4.0 * sh * sh - 2.0 * q) / d
-            else:
-                kappa = conc[j]
-                c = cos_t[t] * cos_mu[j] + sin_t[t] * sin_mu[j]
-                turn_lp[t, j] = kappa * (c - 1.0) - turn_norm[j]
-                if gradient:
-                    deriv[2, t, j] = kappa * (sin_t[t] * cos_mu[j] - cos_t[t] * sin_mu[j])
-                    deriv[3, t, j] = kappa * (c - turn_slope[j])
-    return step_lp, turn_lp, deriv
+            step_lp[t, j] = step_term(step_kind[t], x[t], log_x[t], tab, j, weibull)
+            if turn_ok[t]:
+                turn_lp[t, j] = turn_term(turn[t], cos_t[t], sin_t[t], tab, j, cauchy)
+    return step_lp, turn_lp
 
 
-__all__ = ["MISSING", "POSITIVE", "ZERO", "slot_terms", "step_constants", "turn_constants"]
+__all__ = ["MISSING", "POSITIVE", "ZERO", "slot_terms", "state_table", "step_constants", "step_slopes", "step_term",
+           "turn_constants", "turn_slopes", "turn_term"]

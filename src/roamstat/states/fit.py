@@ -12,6 +12,15 @@ number of starts that reached it (within ``BEST_TOLERANCE``) is reported
 (Zucchini, MacDonald & Langrock 2016, §3.4.2; Michelot, Langrock & Patterson
 2016).  States are then ordered by mean step length, state 1 slowest.
 
+A one-state model is fitted from one start only, the first (for K = 1 its
+step law from the moments of the steps): with one state the likelihood
+separates into the step law, the turn law and the zero mass, each of which
+has a single maximum (gamma and Weibull: the profile likelihood of the shape
+is unimodal, Johnson, Kotz & Balakrishnan 1994, chapters 17 and 21; von Mises:
+Mardia & Jupp 2000, §5.3.1; both from memory; wrapped Cauchy: Kent & Tyler 1988;
+the zero mass: a binomial proportion), so further starts only find it again.
+It reports ``n_starts = n_best_starts = 1``.
+
 Long chains (more than ``SCREEN_ABOVE`` slots) screen the starts on a
 systematic subsample: ``SCREEN_WINDOWS`` contiguous windows of the chain,
 evenly spaced, ``SCREEN_SLOTS`` slots in all, each window a fresh piece of
@@ -35,6 +44,11 @@ References
 ----------
 Gill, P. E., Murray, W. & Wright, M. H. (1981). Practical Optimization.
 Academic Press.
+Johnson, N. L., Kotz, S. & Balakrishnan, N. (1994). Continuous Univariate
+Distributions, vol. 1, 2nd ed. Wiley.
+Kent, J. T. & Tyler, D. E. (1988). Maximum likelihood estimation for the
+wrapped Cauchy distribution. Journal of Applied Statistics 15: 247-254.
+Mardia, K. V. & Jupp, P. E. (2000). Directional Statistics. Wiley.
 Zucchini, W., MacDonald, I. L. & Langrock, R. (2016). Hidden Markov Models
 for Time Series: An Introduction Using R, 2nd ed. CRC Press.
 Michelot, T., Langrock, R. & Patterson, T. A. (2016). Statistical modelling
@@ -147,7 +161,7 @@ def fit_hmm(obs: Observations, n_states: int, step_family: str, turn_family: str
     step_family, turn_family : str
         Families shared by all states (``families.STEP_FAMILIES``, ``families.TURN_FAMILIES``).
     n_starts : int
-        Starting points (the first is deterministic).
+        Starting points (the first is deterministic); one only when ``n_states`` is 1.
     rng : numpy.random.Generator
         Draws the random starting points.
 
@@ -161,6 +175,7 @@ def fit_hmm(obs: Observations, n_states: int, step_family: str, turn_family: str
     lo, hi = np.array(bounds).T
     screen = screening_subsample(obs)
     results = []
+    n_starts = 1 if n_states == 1 else n_starts  # a single maximum (module docstring)
     with warnings.catch_warnings(), np.errstate(all="ignore"):
         warnings.simplefilter("ignore", RuntimeWarning)
         for s in range(n_starts):
@@ -281,6 +296,8 @@ def _start(layout: Layout, obs: Observations, rng: np.random.Generator, first: b
         cv = rng.uniform(0.4, 1.4, k)
         stay = rng.uniform(0.5, 0.97, k)
     mean = np.quantile(x, q)
+    if k == 1 and x.size > 1 and x.std() > 0:  # one state: its law's moments (the fit's only start)
+        mean, cv = np.full(1, x.mean()), np.full(1, x.std() / x.mean())
     shape, scale = start_step(layout.step_family, mean, cv)
     mu, r = _turn_start(obs, mean, k)
     if not first:

@@ -21,9 +21,11 @@ from __future__ import annotations
 import numpy as np
 
 from roamstat.states.chain import Chain
-from roamstat.states.densities import MISSING, POSITIVE, ZERO, slot_terms, step_constants, turn_constants
+from roamstat.states.densities import MISSING, POSITIVE, ZERO, slot_terms, state_table, step_constants, turn_constants
+from roamstat.states.evaluate import loglik_gradient
+from roamstat.states.families import TURN_FAMILIES
 from roamstat.states.params import HmmParams, Layout
-from roamstat.states.recursions import forward_loglik, posterior_sums
+from roamstat.states.recursions import forward_loglik
 
 
 class Observations:
@@ -39,7 +41,7 @@ class Observations:
         self.step_pos = chain.step_m[self.pos]
         self.turn_obs = chain.turn_rad[self.turns]
         self.n_slots = chain.n_slots
-        # per-slot inputs of the compiled pass (densities.slot_terms), computed once
+        # per-slot inputs of the compiled passes (densities.slot_terms, evaluate.loglik_gradient), computed once
         self._step_kind = np.full(self.n_slots, MISSING, np.int8)
         self._step_kind[self.pos] = POSITIVE
         self._step_kind[self.zeros] = ZERO
@@ -57,21 +59,12 @@ class Observations:
 
     def log_densities(self, p: HmmParams) -> tuple[np.ndarray, np.ndarray]:
         """Step and turn log densities per slot and state, each shape (S, K), 0 where missing."""
-        step_lp, turn_lp, _ = self._terms(p, gradient=False)
-        return step_lp, turn_lp
-
-    def _terms(self, p: HmmParams, gradient: bool) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """:func:`~roamstat.states.densities.slot_terms` of this chain under ``p``."""
         step_norm, step_slope = step_constants(p.step_family, p.shape, p.scale)
         turn_norm, turn_slope = turn_constants(p.turn_family, p.conc)
-        if p.zero is None:
-            log_zero = log_moving = np.zeros(p.n_states)
-        else:
-            log_zero, log_moving = np.log(p.zero), np.log1p(-p.zero)
+        tab = state_table(p.shape, p.scale, np.empty(0) if p.zero is None else p.zero, p.mu, p.conc, step_norm,
+                          step_slope, turn_norm, turn_slope)
         return slot_terms(self._step_kind, self._x, self._log_x, self._turn_ok, self._turn, self._cos_t,
-                          self._sin_t, p.step_family == "weibull", p.shape, p.scale, step_norm, step_slope,
-                          p.zero is not None, log_zero, log_moving, p.turn_family == "wrapped_cauchy", p.mu, p.conc, turn_norm,
-                          turn_slope, gradient)
+                          self._sin_t, tab, p.step_family == "weibull", p.turn_family == "wrapped_cauchy")
 
     def loglik(self, p: HmmParams) -> float:
         """Log-likelihood by the scaled forward algorithm."""
@@ -85,40 +78,20 @@ class Observations:
     def loglik_and_gradient(self, layout: Layout, theta: np.ndarray) -> tuple[float, np.ndarray]:
         """Log-likelihood and its exact gradient with respect to the free parameters.
 
-        The HMM part comes from Fisher's identity (:func:`posterior_sums`):
-        each state's log-density derivatives (:mod:`roamstat.states.densities`,
-        analytic; the zero mass's included) weighted by the local state
-        probabilities, and the expected transition counts for the transition matrix.
+        One compiled pass (:func:`~roamstat.states.evaluate.loglik_gradient`):
+        the HMM part comes from Fisher's identity, each state's log-density
+        derivatives (:mod:`roamstat.states.densities`, analytic; the zero
+        mass's included) weighted by the local state probabilities, and the
+        expected transition counts for the transition matrix.  Only the
+        per-state special functions are computed here.
         """
-        p = layout.unpack(theta)
-        k = p.n_states
-        step_lp, turn_lp, deriv = self._terms(p, gradient=True)
-        with np.errstate(all="ignore"):
-            logp = step_lp + turn_lp
-        if not np.all(np.isfinite(logp)):
-            return -np.inf, np.zeros_like(theta)
-        delta = p.delta
-        ll, sums, counts, first = posterior_sums(logp, self.chain.restart, delta, p.gamma, deriv)
-        if not np.isfinite(ll):
-            return -np.inf, np.zeros_like(theta)
-        grad = np.zeros_like(theta)
-        grad[:4 * k] = sums[:4].ravel()  # shape, scale, mu and concentration blocks, in the layout's order
-        off = ~np.eye(k, dtype=bool)
-        eta_grad = counts - p.gamma * counts.sum(axis=1, keepdims=True)
-        eta_grad += _stationary_slope(p.gamma, delta, first / delta)
-        grad[4 * k:4 * k + k * (k - 1)] = eta_grad[off]
-        if p.zero is not None:
-            grad[4 * k + k * (k - 1):] = sums[4]
+        k = layout.n_states
+        shape, scale = np.exp(theta[:k]), np.exp(theta[k:2 * k])
+        conc = TURN_FAMILIES[layout.turn_family].from_free(theta[3 * k:4 * k])
+        step_norm, step_slope = step_constants(layout.step_family, shape, scale)
+        turn_norm, turn_slope = turn_constants(layout.turn_family, conc)
+        ll, grad = loglik_gradient(theta, shape, scale, conc, step_norm, step_slope, turn_norm, turn_slope,
+                                   layout.step_family == "weibull", layout.turn_family == "wrapped_cauchy",
+                                   layout.zero_mass, self._step_kind, self._x, self._log_x, self._turn_ok,
+                                   self._turn, self._cos_t, self._sin_t, self.chain.restart)
         return float(ll), grad
-
-
-def _stationary_slope(gamma: np.ndarray, delta: np.ndarray, weight: np.ndarray) -> np.ndarray:
-    """sum_k weight_k d delta_k / d eta_ij for the multinomial-logit rows of gamma.
-
-    delta A = 1' with A = I - Gamma + U, so d delta = delta dGamma A^-1 and
-    sum_k w_k d delta_k / d gamma_il = delta_i (A^-1 w)_l; then through the
-    softmax, d gamma_il / d eta_ij = gamma_il (1[l = j] - gamma_ij).
-    """
-    k = gamma.shape[0]
-    slope_gamma = np.outer(delta, np.linalg.solve(np.eye(k) - gamma + 1.0, weight))
-    return gamma * (slope_gamma - np.sum(slope_gamma * gamma, axis=1, keepdims=True))

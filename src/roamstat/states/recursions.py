@@ -66,6 +66,28 @@ def forward_loglik(logp, restart, delta, gamma):
     return ll
 
 
+@numba.njit(cache=True, nogil=True, inline="always")
+def forward_step(t, restart, delta, gamma, dens, prior, alpha):
+    """Slot ``t`` of the scaled forward recursion on (S, K) tables; returns the normaliser.
+
+    ``prior[t]`` = ``delta`` at a restart, else ``alpha[t - 1]`` Gamma (already
+    normalised); ``alpha[t]`` = ``prior[t]`` x ``dens[t]``, left unnormalised.
+    """
+    k = delta.size
+    total = 0.0
+    for j in range(k):
+        if restart:
+            p = delta[j]
+        else:
+            p = 0.0
+            for i in range(k):
+                p += alpha[t - 1, i] * gamma[i, j]
+        prior[t, j] = p
+        alpha[t, j] = p * dens[t, j]
+        total += alpha[t, j]
+    return total
+
+
 @numba.njit(cache=True, nogil=True)
 def forward_backward(logp, restart, delta, gamma):
     """Log-likelihood and normalised forward and backward vectors.
@@ -81,13 +103,6 @@ def forward_backward(logp, restart, delta, gamma):
     beta : ndarray (S, K)
         Backward probabilities, rescaled per slot (only ratios across k matter).
     """
-    ll, alpha, prior, beta, _ = _forward_backward(logp, restart, delta, gamma)
-    return ll, alpha, prior, beta
-
-
-@numba.njit(cache=True, nogil=True)
-def _forward_backward(logp, restart, delta, gamma):
-    """:func:`forward_backward`'s four values, then ``dens`` (S, K) = exp(logp - max over k of logp)."""
     n, k = logp.shape
     alpha = np.empty((n, k))
     prior = np.empty((n, k))
@@ -102,19 +117,9 @@ def _forward_backward(logp, restart, delta, gamma):
         for j in range(k):
             dens[t, j] = np.exp(logp[t, j] - m)
     for t in range(n):
-        total = 0.0
-        for j in range(k):
-            if restart[t]:
-                p = delta[j]
-            else:
-                p = 0.0
-                for i in range(k):
-                    p += alpha[t - 1, i] * gamma[i, j]
-            prior[t, j] = p
-            alpha[t, j] = p * dens[t, j]
-            total += alpha[t, j]
+        total = forward_step(t, restart[t], delta, gamma, dens, prior, alpha)
         if total <= 0.0 or not np.isfinite(total):
-            return -np.inf, alpha, prior, beta, dens
+            return -np.inf, alpha, prior, beta
         ll += np.log(total)
         for j in range(k):
             alpha[t, j] /= total
@@ -132,7 +137,7 @@ def _forward_backward(logp, restart, delta, gamma):
             total += b
         for i in range(k):
             beta[t, i] /= total
-    return ll, alpha, prior, beta, dens
+    return ll, alpha, prior, beta
 
 
 @numba.njit(cache=True, nogil=True)
@@ -163,64 +168,3 @@ def viterbi(logp, restart, delta, gamma):
         else:
             path[t] = back[t + 1, path[t + 1]]
     return path
-
-
-@numba.njit(cache=True, nogil=True)
-def posterior_sums(logp, restart, delta, gamma, deriv):
-    """Log-likelihood and the posterior expectations its exact gradient needs.
-
-    By Fisher's identity d log L / d theta = sum_t sum_k Pr(C_t = k | x) d log f_k(x_t) / d theta,
-    and d log L / d gamma_ij = N_ij / gamma_ij with N_ij = sum_t Pr(C_{t-1} = i, C_t = j | x)
-    (Zucchini, MacDonald & Langrock 2016, §4.2 for the expectations).  The local
-    probabilities Pr(C_t = k | x) are summed against ``deriv`` as they are formed,
-    so no (S, K) table of them is kept.
-
-    Parameters
-    ----------
-    logp, restart, delta, gamma
-        As :func:`forward_loglik`.
-    deriv : ndarray (D, S, K)
-        Per slot and state, D derivatives of the slot's log density.
-
-    Returns
-    -------
-    loglik : float
-    sums : ndarray (D, K)
-        sum_t Pr(C_t = k | x) deriv[d, t, k].
-    counts : ndarray (K, K)
-        Expected numbers of i -> j transitions within segments.
-    first : ndarray (K,)
-        sum over segment starts of Pr(C_t = k | x).
-    """
-    n, k = logp.shape
-    n_deriv = deriv.shape[0]
-    counts = np.zeros((k, k))
-    sums = np.zeros((n_deriv, k))
-    first = np.zeros(k)
-    ll, alpha, prior, beta, dens = _forward_backward(logp, restart, delta, gamma)
-    if not np.isfinite(ll):
-        return ll, sums, counts, first
-    local = np.empty(k)
-    xi = np.empty((k, k))
-    for t in range(n):
-        total = 0.0
-        for j in range(k):
-            local[j] = alpha[t, j] * beta[t, j]
-            total += local[j]
-        for j in range(k):
-            local[j] /= total
-            for d in range(n_deriv):
-                sums[d, j] += local[j] * deriv[d, t, j]
-        if restart[t]:
-            for j in range(k):
-                first[j] += local[j]
-            continue
-        total = 0.0
-        for i in range(k):
-            for j in range(k):
-                xi[i, j] = alpha[t - 1, i] * gamma[i, j] * dens[t, j] * beta[t, j]
-                total += xi[i, j]
-        for i in range(k):
-            for j in range(k):
-                counts[i, j] += xi[i, j] / total
-    return ll, sums, counts, first
