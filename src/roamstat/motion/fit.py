@@ -152,15 +152,11 @@ def aicc(loglik: float, k: int, n_obs: int) -> float:
     return -2.0 * loglik + 2.0 * k + 2.0 * k * (k + 1) / (n_obs - k - 1)
 
 
-def fit_model(name: str, track: Track, error: LocationError, start: dict | None = None,
-              standard_errors: bool = True) -> MotionFit:
+def fit_model(name: str, track: Track, error: LocationError, standard_errors: bool = True) -> MotionFit:
     """Fit one model to a prepared track by maximum likelihood.
 
-    ``start`` (natural parameters, e.g. another fit's ``params``) joins the grid of starting
-    values, clipped into the search box; the optimisation starts from whichever has the highest
-    likelihood, so the estimator is still the same likelihood's maximum.  With
-    ``standard_errors=False`` the Hessian is skipped: ``se`` and ``cov_log`` are NaN (for
-    refits that need only the estimates).
+    With ``standard_errors=False`` the numerical Hessian is skipped (``se`` and ``cov_log`` are
+    NaN), for fits whose estimates and AICc alone are used.
     """
     check_model(name)
     estimate_error = track.error_var is None
@@ -181,8 +177,6 @@ def fit_model(name: str, track: Track, error: LocationError, start: dict | None 
         return value if np.isfinite(value) else 1e300
 
     starts = [centre + np.log(mult) for mult in itertools.product(*(_START_GRID[key] for key in free))]
-    if start is not None and all(np.isfinite(start.get(key, np.nan)) and start[key] > 0 for key in free):
-        starts.append(np.clip(np.log([start[key] for key in free]), *np.transpose(bounds)))
     windows = screening_windows(track)
     if windows:
         def screened(theta):
@@ -240,7 +234,7 @@ def screening_windows(track: Track) -> list[Track]:
     return out
 
 
-def fit_motion_models(t_s, x_m, y_m, error: LocationError, models=MOTION_MODELS, start: dict | None = None,
+def fit_motion_models(t_s, x_m, y_m, error: LocationError, models=MOTION_MODELS,
                       standard_errors: bool = True) -> list[MotionFit]:
     """Fit each motion model to one animal's fixes.
 
@@ -254,8 +248,6 @@ def fit_motion_models(t_s, x_m, y_m, error: LocationError, models=MOTION_MODELS,
         Known per-fix error SDs, or None to estimate one SD with each model.
     models : sequence of str
         Names from ``MOTION_MODELS``.
-    start : dict, optional
-        Natural parameters added to each model's starting grid (:func:`fit_model`).
     standard_errors : bool
         False skips the Hessian (NaN ``se`` and ``cov_log``).
 
@@ -267,7 +259,7 @@ def fit_motion_models(t_s, x_m, y_m, error: LocationError, models=MOTION_MODELS,
     track = prepare_track(t_s, x_m, y_m, error.sd_m)
     if track.n < MIN_FIXES:
         return []
-    return [fit_model(name, track, error, start, standard_errors) for name in models]
+    return [fit_model(name, track, error, standard_errors) for name in models]
 
 
 def best_fit(fits) -> MotionFit | None:

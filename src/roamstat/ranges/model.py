@@ -194,7 +194,7 @@ def debiased_fit(fit, t_s, error, rng: np.random.Generator, n_reps: int = BIAS_R
     error_sd = error.sd_m if error.sd_m is not None else fit.params["error_sd_m"]
     logs = []
     for track in fit.simulate(t_s, n_reps, rng, error_sd):
-        refit = fit_motion_models(t_s, track[:, 0], track[:, 1], error, models=(fit.name,))
+        refit = fit_motion_models(t_s, track[:, 0], track[:, 1], error, models=(fit.name,), standard_errors=False)
         value = refit[0].params["tau_position_s"] if refit else math.nan
         if math.isfinite(value) and value > 0:
             logs.append(math.log(value))

@@ -405,7 +405,8 @@ def parts_motion(model: str, p, t, located: pd.DataFrame, cfg):
 
     best = {}
     for name, mask in range_parts(model, p, t).items():
-        fits = [f for f in fit_animal_motion(located[mask].reset_index(drop=True), cfg).fits if np.isfinite(f.aicc)]
+        part = fit_animal_motion(located[mask].reset_index(drop=True), cfg, standard_errors=False)  # AICc only
+        fits = [f for f in part.fits if np.isfinite(f.aicc)]
         best[name] = min(fits, key=lambda f: f.aicc) if fits else None
     resident = any(f is not None and f.range_resident for f in best.values())
     return resident, ", ".join(f"{k} {f.name if f is not None else 'none'}" for k, f in best.items())
