@@ -60,6 +60,7 @@ MAX_FIT_POINTS = 5000  # longer series are thinned evenly in time for the fits (
 EXPLORE_POINTS = 400  # starting values are screened on this many points of longer series
 EXPLORE_NFEV = 8  # function evaluations a start gets before the best are polished
 POLISHED_STARTS = 3
+SAME_RSS = 1e-6  # polished RSS within this share of each other count as the same optimum (judgement)
 MAX_CURVE_POINTS = 1500  # points handed to the report figure
 WEAK_DELTA = 2.0  # delta AIC below which support is weak (Burnham & Anderson 2002)
 # Fewer effective fixes make the area CI span more than a factor ~2.5 (chi-square, 2 n_eff dof) (judgement).
@@ -232,10 +233,16 @@ def fit_model(model: str, t, y, dt_days: float):
         inside = (bounds[0] + 1e-12, bounds[1] - 1e-12)  # trf starts strictly inside the box
         starts = [np.clip(explored[i], *inside) for i in np.argsort(rss, kind="stable")[:POLISHED_STARTS]
                   if np.isfinite(rss[i])] or starts
-    best, best_rss = None, math.inf
+    best, best_rss, found = None, math.inf, []
     for start in starts:
         result = _solve(model, start, t, y, span, dt_days, bounds, scale)
-        if result and result[2] and result[1] < best_rss:
+        if not (result and result[2]):
+            continue
+        if any(abs(result[1] - rss) <= SAME_RSS * rss for rss in found):
+            # two polished starts reached the same optimum: the rest are not polished (their screen RSS is higher)
+            break
+        found.append(result[1])
+        if result[1] < best_rss:
             best, best_rss = _natural(model, result[0], span, dt_days), result[1]
     return (best, best_rss) if best is not None else (None, math.nan)
 
