@@ -149,7 +149,8 @@ def debiased_fit(fit, t_s, error, rng: np.random.Generator, n_reps: int = BIAS_R
     by the many short steps, is nearly unbiased.  The bias of log tau is
     estimated by parametric bootstrap (Efron & Tibshirani 1993, ch. 10):
     ``n_reps`` tracks simulated from the fit at the animal's own times, with
-    its location error, refitted with the same model.  The bias is of order
+    its location error, refitted with the same model (without the Hessian:
+    only the estimate of tau is used).  The bias is of order
     tau / duration and was measured at the biased estimate, so it is scaled
     to the corrected tau: with s the mean shift of log tau, the correction
     r = tau_c / tau_hat solves log r = -s r, i.e. log r = -W(s) (Lambert W;

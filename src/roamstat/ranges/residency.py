@@ -233,7 +233,8 @@ def fit_model(model: str, t, y, dt_days: float):
         inside = (bounds[0] + 1e-12, bounds[1] - 1e-12)  # trf starts strictly inside the box
         starts = [np.clip(explored[i], *inside) for i in np.argsort(rss, kind="stable")[:POLISHED_STARTS]
                   if np.isfinite(rss[i])] or starts
-    best, best_rss, found = None, math.inf, []
+    best, best_rss = None, math.inf
+    found: list[float] = []
     for start in starts:
         result = _solve(model, start, t, y, span, dt_days, bounds, scale)
         if not (result and result[2]):
