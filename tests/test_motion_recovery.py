@@ -65,3 +65,16 @@ def test_aicc_selects_the_generating_model(truth):
             xy = ou_track(t, 800.0, 86400.0 / 4, rng) + rng.normal(0.0, 30.0, (t.size, 2))
         chosen.append(best_fit(fit_motion_models(t, xy[:, 0], xy[:, 1], ESTIMATED)).name)
     assert chosen.count(truth) >= 6, chosen
+
+
+def test_fits_without_standard_errors_give_the_same_estimates_and_aicc():
+    # reference: the same fit with its Hessian; the OU track is drawn by the tests' own generator
+    rng = np.random.default_rng(77)
+    t = np.cumsum(rng.exponential(3600.0, 300))
+    xy = ou_track(t, 300.0, 20000.0, rng) + rng.normal(0.0, 30.0, (300, 2))
+    full = fit_motion_models(t - t[0], xy[:, 0], xy[:, 1], ESTIMATED, models=("ou", "ctcrw"))
+    bare = fit_motion_models(t - t[0], xy[:, 0], xy[:, 1], ESTIMATED, models=("ou", "ctcrw"), standard_errors=False)
+    for a, b in zip(full, bare):
+        assert a.params == b.params and a.aicc == b.aicc
+        assert np.isfinite(a.se["tau_position_s" if a.name == "ou" else "tau_velocity_s"])
+        assert all(np.isnan(v) for v in b.se.values()) and np.isnan(b.cov_log).all()

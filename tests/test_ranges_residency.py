@@ -178,3 +178,45 @@ def test_search_jacobian_equals_central_differences(model):
             (predict(model, _natural(model, q + e, 130.0, 0.25), t) - predict(model, _natural(model, q - e, 130.0, 0.25), t))
             / (2 * h) for e, h in zip(np.diag(step), step)])
         np.testing.assert_allclose(got, numeric, rtol=1e-5, atol=1e-6 * np.abs(numeric).max())
+
+
+@pytest.mark.parametrize("model", ["resident", "disperser", "migrant", "mixed_migrant"])
+def test_batched_curves_match_predict_and_the_single_jacobian(model):
+    # reference: predict() on the natural parameters, one search vector at a time
+    from roamstat.ranges.residency import _natural, _starts_and_bounds, predict, search_fun_jac, search_jacobian
+
+    t = np.linspace(0.0, 130.0, 200)
+    y = 900.0 / (1.0 + np.exp(-(t - 40.0) / 2.0))
+    starts, _ = _starts_and_bounds(model, t, y, 0.25)
+    q = np.array(starts)
+    f, jac = search_fun_jac(model, q, t, 130.0, 0.25)
+    for i, row in enumerate(q):
+        np.testing.assert_allclose(f[i], predict(model, _natural(model, row, 130.0, 0.25), t), rtol=1e-12, atol=1e-9)
+        np.testing.assert_allclose(jac[i], search_jacobian(model, row, t, 130.0, 0.25), rtol=1e-12, atol=1e-12)
+
+
+@pytest.mark.parametrize("model, seed", [("disperser", 3), ("resident", 4), ("migrant", 5)])
+def test_the_screen_reaches_what_scipy_least_squares_reaches(model, seed):
+    # reference: scipy.optimize.least_squares (trust-region reflective) from the same starts on a noisy
+    # curve simulated here (Bunnefeld et al. 2011 forms, drawn with the test's own expressions)
+    from scipy.optimize import least_squares
+
+    from roamstat.ranges.residency import _starts_and_bounds, explore, search_fun_jac
+
+    rng = np.random.default_rng(seed)
+    t = np.linspace(0.0, 200.0, 300)
+    shapes = {"disperser": 1500.0 / (1.0 + np.exp(-(t - 70.0) / 3.0)),
+              "resident": 40.0 * (1.0 - np.exp(-t / 15.0)),
+              "migrant": 900.0 / (1.0 + np.exp(-(t - 50.0) / 2.0)) - 900.0 / (1.0 + np.exp(-(t - 140.0) / 4.0))}
+    y = shapes[model] + rng.normal(0.0, 0.05 * shapes[model].max(), t.size)
+    starts, bounds = _starts_and_bounds(model, t, y, float(t[1] - t[0]))
+    starts = np.array(starts)
+    first, rss_first = explore(model, starts, t, y, 200.0, float(t[1] - t[0]), bounds, 1)
+    q, rss = explore(model, starts, t, y, 200.0, float(t[1] - t[0]), bounds, 300)
+    assert np.all(rss <= rss_first) and np.all((q >= bounds[0]) & (q <= bounds[1]))
+    best = int(np.argmin(rss))
+    fit = least_squares(lambda x: search_fun_jac(model, x[None], t, 200.0, float(t[1] - t[0]))[0][0] - y, starts[best],
+                        jac=lambda x: search_fun_jac(model, x[None], t, 200.0, float(t[1] - t[0]))[1][0],
+                        bounds=bounds, method="trf")
+    reference = float(np.sum(fit.fun ** 2))
+    assert abs(rss[best] - reference) <= 1e-6 * reference, (rss[best], reference)

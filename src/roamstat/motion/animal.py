@@ -69,7 +69,7 @@ def error_of(fixes_a: pd.DataFrame, cfg) -> LocationError:
     return location_error(fixes_a, getattr(cfg, "uere_m", None), read_class_table(table) if table else None)
 
 
-def fit_animal_motion(located: pd.DataFrame, cfg, models=MOTION_MODELS) -> AnimalMotion:
+def fit_animal_motion(located: pd.DataFrame, cfg, models=MOTION_MODELS, standard_errors: bool = True) -> AnimalMotion:
     """Resolve the location error and fit ``models`` to one animal's located fixes.
 
     Parameters
@@ -81,6 +81,8 @@ def fit_animal_motion(located: pd.DataFrame, cfg, models=MOTION_MODELS) -> Anima
         Uses ``uere_m`` and ``error_class_table``.
     models : sequence of str
         Names from ``MOTION_MODELS``.
+    standard_errors : bool
+        False skips the Hessians (NaN standard errors) when only estimates and AICc are used.
 
     Returns
     -------
@@ -92,7 +94,7 @@ def fit_animal_motion(located: pd.DataFrame, cfg, models=MOTION_MODELS) -> Anima
     x = located["x_m"].to_numpy(float)
     y = located["y_m"].to_numpy(float)
     error = error_of(located, cfg)
-    fits = tuple(fit_motion_models(t_s, x, y, error, models=models)) if len(located) else ()
+    fits = tuple(fit_motion_models(t_s, x, y, error, models=models, standard_errors=standard_errors)) if len(located) else ()
     return AnimalMotion(time0, t_s, x, y, error, fits)
 
 

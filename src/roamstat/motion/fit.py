@@ -152,8 +152,12 @@ def aicc(loglik: float, k: int, n_obs: int) -> float:
     return -2.0 * loglik + 2.0 * k + 2.0 * k * (k + 1) / (n_obs - k - 1)
 
 
-def fit_model(name: str, track: Track, error: LocationError) -> MotionFit:
-    """Fit one model to a prepared track by maximum likelihood."""
+def fit_model(name: str, track: Track, error: LocationError, standard_errors: bool = True) -> MotionFit:
+    """Fit one model to a prepared track by maximum likelihood.
+
+    With ``standard_errors=False`` the numerical Hessian is skipped (``se`` and ``cov_log`` are
+    NaN), for fits whose estimates and AICc alone are used.
+    """
     check_model(name)
     estimate_error = track.error_var is None
     free = MOVEMENT_PARAMS[name] + (("error_sd_m",) if estimate_error else ())
@@ -192,10 +196,12 @@ def fit_model(name: str, track: Track, error: LocationError) -> MotionFit:
         at_edge = {swap.get(key, key) for key in at_edge}
     theta = np.log([p[key] for key in free])  # in the order of the named parameters
     loglik, mean = conditional_loglik(name, p, track)
-    try:
-        cov_log = np.linalg.inv(_hessian(objective, theta))
-    except np.linalg.LinAlgError:
-        cov_log = np.full((len(free), len(free)), np.nan)
+    cov_log = np.full((len(free), len(free)), np.nan)
+    if standard_errors:
+        try:
+            cov_log = np.linalg.inv(_hessian(objective, theta))
+        except np.linalg.LinAlgError:
+            pass
     params = dict.fromkeys(PARAM_KEYS, np.nan)
     params.update(p)
     if name in RANGE_RESIDENT:
@@ -228,7 +234,8 @@ def screening_windows(track: Track) -> list[Track]:
     return out
 
 
-def fit_motion_models(t_s, x_m, y_m, error: LocationError, models=MOTION_MODELS) -> list[MotionFit]:
+def fit_motion_models(t_s, x_m, y_m, error: LocationError, models=MOTION_MODELS,
+                      standard_errors: bool = True) -> list[MotionFit]:
     """Fit each motion model to one animal's fixes.
 
     Parameters
@@ -241,6 +248,8 @@ def fit_motion_models(t_s, x_m, y_m, error: LocationError, models=MOTION_MODELS)
         Known per-fix error SDs, or None to estimate one SD with each model.
     models : sequence of str
         Names from ``MOTION_MODELS``.
+    standard_errors : bool
+        False skips the Hessian (NaN ``se`` and ``cov_log``).
 
     Returns
     -------
@@ -250,7 +259,7 @@ def fit_motion_models(t_s, x_m, y_m, error: LocationError, models=MOTION_MODELS)
     track = prepare_track(t_s, x_m, y_m, error.sd_m)
     if track.n < MIN_FIXES:
         return []
-    return [fit_model(name, track, error) for name in models]
+    return [fit_model(name, track, error, standard_errors) for name in models]
 
 
 def best_fit(fits) -> MotionFit | None:

@@ -149,7 +149,8 @@ def debiased_fit(fit, t_s, error, rng: np.random.Generator, n_reps: int = BIAS_R
     by the many short steps, is nearly unbiased.  The bias of log tau is
     estimated by parametric bootstrap (Efron & Tibshirani 1993, ch. 10):
     ``n_reps`` tracks simulated from the fit at the animal's own times, with
-    its location error, refitted with the same model.  The bias is of order
+    its location error, refitted with the same model (without the Hessian:
+    only the estimate of tau is used).  The bias is of order
     tau / duration and was measured at the biased estimate, so it is scaled
     to the corrected tau: with s the mean shift of log tau, the correction
     r = tau_c / tau_hat solves log r = -s r, i.e. log r = -W(s) (Lambert W;
@@ -194,7 +195,7 @@ def debiased_fit(fit, t_s, error, rng: np.random.Generator, n_reps: int = BIAS_R
     error_sd = error.sd_m if error.sd_m is not None else fit.params["error_sd_m"]
     logs = []
     for track in fit.simulate(t_s, n_reps, rng, error_sd):
-        refit = fit_motion_models(t_s, track[:, 0], track[:, 1], error, models=(fit.name,))
+        refit = fit_motion_models(t_s, track[:, 0], track[:, 1], error, models=(fit.name,), standard_errors=False)
         value = refit[0].params["tau_position_s"] if refit else math.nan
         if math.isfinite(value) and value > 0:
             logs.append(math.log(value))

@@ -60,6 +60,7 @@ MAX_FIT_POINTS = 5000  # longer series are thinned evenly in time for the fits (
 EXPLORE_POINTS = 400  # starting values are screened on this many points of longer series
 EXPLORE_NFEV = 8  # function evaluations a start gets before the best are polished
 POLISHED_STARTS = 3
+SAME_RSS = 1e-6  # polished RSS within this share of each other count as the same optimum (judgement)
 MAX_CURVE_POINTS = 1500  # points handed to the report figure
 WEAK_DELTA = 2.0  # delta AIC below which support is weak (Burnham & Anderson 2002)
 # Fewer effective fixes make the area CI span more than a factor ~2.5 (chi-square, 2 n_eff dof) (judgement).
@@ -165,31 +166,51 @@ def search_jacobian(model: str, q, t, span: float, dt_days: float) -> np.ndarray
     max(span - theta1 - gap, 0) and d2 = r d (r = 1 for the migrant), hence the chain
     rule through theta2 (:func:`_natural`).
     """
-    t = np.asarray(t, float)
+    if model not in ("resident", "disperser", "migrant", "mixed_migrant"):
+        raise ValueError(f"no search Jacobian for residency model {model!r}")
+    return search_fun_jac(model, np.asarray(q, float)[None, :], t, span, dt_days)[1][0]
+
+
+def search_fun_jac(model: str, q, t, span: float, dt_days: float):
+    """NSD and its :func:`search_jacobian` for a batch of search vectors at once.
+
+    The sigmoid terms are computed once and shared by both.
+
+    Parameters
+    ----------
+    q : numpy.ndarray
+        (b, k) search vectors of ``model`` (resident, disperser, migrant, mixed_migrant).
+
+    Returns
+    -------
+    f : numpy.ndarray
+        (b, n) NSD (km²) at the days ``t``.
+    jac : numpy.ndarray
+        (b, n, k) derivatives with respect to the search vector.
+    """
+    t = np.asarray(t, float)[None, :]
+    cols = [q[:, i:i + 1] for i in range(q.shape[1])]
     if model == "resident":
-        a, tau = q
-        decay = np.exp(-t / tau)
-        return np.column_stack([-np.expm1(-t / tau), -a * decay * t / tau**2])
+        a, tau = cols
+        decay, rise = np.exp(-t / tau), -np.expm1(-t / tau)
+        return a * rise, np.stack([rise, -a * decay * t / tau**2], axis=-1)
     if model == "disperser":
-        d, theta, phi = q
+        d, theta, phi = cols
         s = _sigmoid(t, theta, phi)
         slope = d * s * (1.0 - s) / phi
-        return np.column_stack([s, -slope, -slope * (t - theta) / phi])
-    if model not in ("migrant", "mixed_migrant"):
-        raise ValueError(f"no search Jacobian for residency model {model!r}")
-    d, theta1, phi1, u, phi2 = q[:5]
-    r = q[5] if model == "mixed_migrant" else 1.0
-    gap = _gap_lo(span, dt_days)
-    room = span - theta1 - gap
-    theta2 = theta1 + gap + u * max(room, 0.0)
+        return d * s, np.stack([s, -slope, -slope * (t - theta) / phi], axis=-1)
+    d, theta1, phi1, u, phi2 = cols[:5]
+    r = cols[5] if model == "mixed_migrant" else 1.0
+    room = span - theta1 - _gap_lo(span, dt_days)
+    theta2 = theta1 + _gap_lo(span, dt_days) + u * np.maximum(room, 0.0)
     s1, s2 = _sigmoid(t, theta1, phi1), _sigmoid(t, theta2, phi2)
     slope1, slope2 = d * s1 * (1.0 - s1) / phi1, r * d * s2 * (1.0 - s2) / phi2  # d f / d (-theta) per sigmoid
-    dtheta2_dtheta1 = 1.0 - u if room > 0 else 1.0
-    cols = [s1 - r * s2, -slope1 + slope2 * dtheta2_dtheta1, -slope1 * (t - theta1) / phi1,
-            slope2 * max(room, 0.0), slope2 * (t - theta2) / phi2]
+    dtheta2_dtheta1 = np.where(room > 0, 1.0 - u, 1.0)
+    jac = [s1 - r * s2, -slope1 + slope2 * dtheta2_dtheta1, -slope1 * (t - theta1) / phi1,
+           slope2 * np.maximum(room, 0.0), slope2 * (t - theta2) / phi2]
     if model == "mixed_migrant":
-        cols.append(-d * s2)
-    return np.column_stack(cols)
+        jac.append(-d * s2)
+    return d * (s1 - r * s2), np.stack(jac, axis=-1)
 
 
 def fit_model(model: str, t, y, dt_days: float):
@@ -205,27 +226,92 @@ def fit_model(model: str, t, y, dt_days: float):
     span = float(t[-1])
     scale = np.maximum(np.abs(np.mean(starts, axis=0)), 1e-9)
     if len(starts) > 2:
-        # Every start briefly (on an even subsample of long series), then only the best few
-        # polished on all points: most of the cost of many starts is iterations, not points.
+        # Every start briefly, all at once (on an even subsample of long series), then only the
+        # best few polished on all points: most of the cost of many starts is iterations, not points.
         sub = _even_index(len(t), EXPLORE_POINTS) if len(t) > 2 * EXPLORE_POINTS else slice(None)
-        explored = [r for r in (_solve(model, q, t[sub], y[sub], span, dt_days, bounds, scale, EXPLORE_NFEV)
-                                for q in starts) if r]
-        starts = [r[0] for r in sorted(explored, key=lambda r: r[1])[:POLISHED_STARTS]] or starts
+        explored, rss = explore(model, np.array(starts), t[sub], y[sub], span, dt_days, bounds, EXPLORE_NFEV)
+        inside = (bounds[0] + 1e-12, bounds[1] - 1e-12)  # trf starts strictly inside the box
+        starts = [np.clip(explored[i], *inside) for i in np.argsort(rss, kind="stable")[:POLISHED_STARTS]
+                  if np.isfinite(rss[i])] or starts
     best, best_rss = None, math.inf
+    found: list[float] = []
     for start in starts:
         result = _solve(model, start, t, y, span, dt_days, bounds, scale)
-        if result and result[2] and result[1] < best_rss:
+        if not (result and result[2]):
+            continue
+        if any(abs(result[1] - rss) <= SAME_RSS * rss for rss in found):
+            # two polished starts reached the same optimum: the rest are not polished (their screen RSS is higher)
+            break
+        found.append(result[1])
+        if result[1] < best_rss:
             best, best_rss = _natural(model, result[0], span, dt_days), result[1]
     return (best, best_rss) if best is not None else (None, math.nan)
 
 
+def explore(model: str, q, t, y, span: float, dt_days: float, bounds, n_steps: int):
+    """A few projected Levenberg-Marquardt steps from every start at once: (search vectors, RSS).
+
+    Each step solves (JᵀJ + lambda diag(JᵀJ)) delta = -Jᵀr (Marquardt 1963) and
+    projects q + delta onto the box (the projected LM of Kanzow, Yamashita &
+    Fukushima 2004); a step that lowers the RSS is kept and lambda divided by 3,
+    otherwise lambda doubles.  One evaluation per step, vectorised over the
+    starts: the screen only ranks the starts for the polish by
+    ``scipy.optimize.least_squares``, and solving each start by itself cost
+    ~0.4 ms of scipy bookkeeping per iteration (measured).
+
+    References
+    ----------
+    Marquardt, D. W. (1963). An algorithm for least-squares estimation of
+    nonlinear parameters. J. Soc. Indust. Appl. Math. 11, 431-441.
+    Kanzow, C., Yamashita, N. & Fukushima, M. (2004). Levenberg-Marquardt
+    methods with strong local convergence properties for solving nonlinear
+    equations with convex constraints. J. Comput. Appl. Math. 172, 375-397.
+    """
+    lo, hi = bounds
+    q = np.clip(np.asarray(q, float), lo, hi)
+    with np.errstate(all="ignore"):  # a start may overflow the curves: its RSS is then inf and it is not chosen
+        f, jac = search_fun_jac(model, q, t, span, dt_days)
+        res = f - y
+        rss = _finite_rss(res)
+        damping = np.full(len(q), 1e-3)
+        for _ in range(n_steps - 1):
+            normal = np.einsum("bnk,bnm->bkm", jac, jac)
+            diag = np.diagonal(normal, axis1=1, axis2=2)
+            diag = np.maximum(diag, 1e-12 * diag.max(axis=1, keepdims=True) + 1e-300)
+            system = normal + damping[:, None, None] * diag[:, :, None] * np.eye(q.shape[1])
+            grad = np.einsum("bnk,bn->bk", jac, res)
+            ok = np.isfinite(system).all(axis=(1, 2)) & np.isfinite(grad).all(axis=1)
+            step = np.zeros_like(q)
+            step[ok] = -np.linalg.solve(system[ok], grad[ok][:, :, None])[:, :, 0]
+            trial = np.clip(q + step, lo, hi)
+            f_new, jac_new = search_fun_jac(model, trial, t, span, dt_days)
+            res_new = f_new - y
+            rss_new = _finite_rss(res_new)
+            better = rss_new < rss
+            q[better], res[better], jac[better], rss[better] = trial[better], res_new[better], jac_new[better], rss_new[better]
+            damping = np.where(better, damping / 3.0, damping * 2.0)
+    return q, rss
+
+
+def _finite_rss(res):
+    rss = np.sum(res * res, axis=1)
+    return np.where(np.isfinite(rss), rss, np.inf)
+
+
 def _solve(model, start, t, y, span, dt_days, bounds, scale, max_nfev=400):
     """(search vector, RSS, converged) from one start, or None when the solver fails."""
+    shared = {}
+
+    def fun_jac(q):  # one evaluation of the curve and its Jacobian, shared by fun and jac
+        if shared.get("q") is None or not np.array_equal(shared["q"], q):
+            f, jac = search_fun_jac(model, q[None, :], t, span, dt_days)
+            shared.update(q=q.copy(), f=f[0] - y, jac=jac[0])
+        return shared
+
     try:
-        res = least_squares(lambda q: predict(model, _natural(model, q, span, dt_days), t) - y, start,
-                            jac=lambda q: search_jacobian(model, q, t, span, dt_days),
+        res = least_squares(lambda q: fun_jac(q)["f"], start, jac=lambda q: fun_jac(q)["jac"],
                             bounds=bounds, x_scale=scale, method="trf", max_nfev=max_nfev)
-    except (ValueError, FloatingPointError):
+    except (ValueError, FloatingPointError, np.linalg.LinAlgError):
         return None
     rss = float(np.sum(res.fun ** 2))
     return (res.x, rss, res.status > 0) if np.isfinite(rss) else None
@@ -327,7 +413,8 @@ def parts_motion(model: str, p, t, located: pd.DataFrame, cfg):
 
     best = {}
     for name, mask in range_parts(model, p, t).items():
-        fits = [f for f in fit_animal_motion(located[mask].reset_index(drop=True), cfg).fits if np.isfinite(f.aicc)]
+        part = fit_animal_motion(located[mask].reset_index(drop=True), cfg, standard_errors=False)  # AICc only
+        fits = [f for f in part.fits if np.isfinite(f.aicc)]
         best[name] = min(fits, key=lambda f: f.aicc) if fits else None
     resident = any(f is not None and f.range_resident for f in best.values())
     return resident, ", ".join(f"{k} {f.name if f is not None else 'none'}" for k, f in best.items())
