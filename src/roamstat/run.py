@@ -19,6 +19,7 @@ from roamstat.config import Config, check_config
 from roamstat.errors import NothingKept
 from roamstat.io.write import write_json
 from roamstat.manifest import MANIFEST, build_manifest, folder_files, outcome_manifest, run_info
+from roamstat.memory import give_back
 from roamstat.outdir import OutputFolder, system_errors
 from roamstat.outputs import all_rejected, masking_origin, report_tables, write_tables
 from roamstat.parallel import AnimalExecutor
@@ -91,7 +92,10 @@ def in_memory(paths, stages: tuple, out_dir: Path, cfg: Config, clock: StageCloc
     """Load every fix, analyse every animal, write the tables."""
     loaded = load(paths, cfg, clock, with_steps="steps" in stages)
     loaded.origin = masking_origin(cfg, unit_vector_sum(loaded.read.rows["lat"], loaded.read.rows["lon"]), origin)
+    give_back()  # reading's scratch, before the analysis allocates on several threads
     tables, animals = analyse(loaded, stages, cfg, clock, executor)
+    give_back()
     with clock("write"):
         write_tables(out_dir, loaded, tables, cfg)
+    give_back()
     return RunResult(loaded=loaded, tables=tables, animals=animals)
