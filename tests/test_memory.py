@@ -16,9 +16,7 @@ from roamstat import memory
 
 PROBE = textwrap.dedent("""
     import sys, psutil, numpy as np, pyarrow  # pyarrow loaded before measuring: give_back uses it
-    from roamstat.memory import fix_mmap_threshold, give_back
-    if sys.argv[1] == "fixed":
-        fix_mmap_threshold()
+    from roamstat.memory import give_back
     process = psutil.Process()
     big = np.ones(4_000_000); del big            # freeing a 32 MB block raises the dynamic threshold
     before = process.memory_info().rss
@@ -37,11 +35,10 @@ def _retained_mb(mode: str) -> int:
 
 
 @pytest.mark.skipif(memory._LIBC is None, reason="glibc's malloc is not the allocator here")
-def test_freed_blocks_stay_resident_by_default_and_are_returned_by_either_remedy():
-    # 198 MB freed of 200 below a live block: glibc keeps them in the heap by default ...
-    assert _retained_mb("default") > 100
-    # ... the fixed threshold maps each block by itself, and a trim returns the heap's free pages
-    assert _retained_mb("fixed") < 20
+def test_freed_blocks_stay_resident_until_given_back():
+    # 198 MB freed of 200 below a live block: glibc keeps them in the heap ...
+    assert _retained_mb("kept") > 100
+    # ... until a trim returns the heap's free pages
     assert _retained_mb("trimmed") < 20
 
 

@@ -1,4 +1,4 @@
-"""The ``roamstat`` command's entry point: one BLAS thread per process, large blocks in mappings, then the CLI.
+"""The ``roamstat`` command's entry point: one BLAS thread per process, then the CLI.
 
 roamstat runs animals in parallel with processes (``--workers``), and its numerical work is
 many small optimisations.  BLAS thread pools spin while they wait for work, and on a busy
@@ -6,9 +6,6 @@ many small optimisations.  BLAS thread pools spin while they wait for work, and 
 profile of ``run`` on the sample.  The limit is a default: a user's own ``OPENBLAS_NUM_THREADS``
 or ``OMP_NUM_THREADS`` wins.  It must be set before numpy is first imported, hence this module;
 ``import roamstat`` as a library leaves threads alone.
-
-Likewise the command fixes glibc's mmap threshold (:func:`roamstat.memory.fix_mmap_threshold`),
-so arrays the run frees are returned to the system; a library user's process is left as it is.
 """
 
 from __future__ import annotations
@@ -22,9 +19,6 @@ def main(argv: list[str] | None = None) -> int:
     """Limit BLAS threads to one (unless the user set them), then run :func:`roamstat.cli.main`."""
     for name in BLAS_THREAD_VARIABLES:
         os.environ.setdefault(name, "1")
-    from roamstat.memory import fix_mmap_threshold
-
-    fix_mmap_threshold()
     from roamstat.cli import main as cli_main  # numpy loads here, after the limit
 
     return cli_main(argv)
