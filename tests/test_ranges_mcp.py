@@ -95,3 +95,31 @@ def test_mcp100_on_real_antarctic_tracks_matches_the_geodesic_hull():
         assert _row(rows, "mcp", 100)["area_km2"] * 1e6 == pytest.approx(reference_m2, rel=6e-3), animal_id
         checked += 1
     assert checked >= 20
+
+
+@pytest.mark.parametrize("shape_of_cloud", ["normal", "uniform", "rounded", "circle"])
+def test_culled_fixes_give_the_hull_of_all_fixes(shape_of_cloud):
+    # Akl & Toussaint (1978): no fix strictly inside the octagon of extreme fixes is a hull vertex,
+    # so the hull is GEOS's hull of every fix, coordinate for coordinate; "rounded" has ties and
+    # collinear fixes, "circle" has every fix on the hull
+    from roamstat.ranges.mcp import hull_candidates
+
+    rng = np.random.default_rng(11)
+    for _ in range(25):
+        n = int(rng.integers(64, 4000))
+        if shape_of_cloud == "normal":
+            x, y = rng.normal(size=(2, n)) * 1e4
+        elif shape_of_cloud == "uniform":
+            x, y = rng.uniform(-1e5, 1e5, (2, n))
+        elif shape_of_cloud == "rounded":
+            x, y = np.round(rng.normal(size=(2, n)) * 3) * 100.0
+        else:
+            angle = rng.uniform(0, 2 * np.pi, n)
+            x, y = 1e4 * np.cos(angle), 1e4 * np.sin(angle)
+        full = MultiPoint(np.column_stack([x, y])).convex_hull
+        assert list(mcp_polygon(x, y)[0].exterior.coords) == list(full.exterior.coords)
+        kept = hull_candidates(x, y)
+        vertices = ConvexHull(np.column_stack([x, y])).vertices  # Qhull, an independent hull
+        assert kept[vertices].all()
+        if shape_of_cloud in ("normal", "uniform"):
+            assert kept.sum() < n / 4  # the culling sets most fixes aside
