@@ -199,8 +199,6 @@ def state_densities(step_m, turn_rad, state, params) -> Picture:
     ax_t.set_xlabel("turning angle (rad; 0 = ahead, + = right)", fontsize=8)
     ax_t.set_ylabel("density within state (per rad)", fontsize=8)
     ax_t.set_xlim(-math.pi, math.pi)
-    for ax in (ax_s, ax_t):
-        ax.tick_params(labelsize=8)
     return _png(fig, ax_s)
 
 
@@ -219,7 +217,6 @@ def residual_qq(step_residual, turn_residual) -> Picture:
         ax.plot([-lim, lim], [-lim, lim], color="#555555", linewidth=0.8, label="1:1 line")
     ax.set_xlabel("standard normal quantile", fontsize=8)
     ax.set_ylabel("pseudo-residual", fontsize=8)
-    ax.tick_params(labelsize=8)
     return _png(fig, ax)
 
 
@@ -257,8 +254,6 @@ def state_budget(state, runs: pd.DataFrame, stationary_p, mean_dwell_s) -> Pictu
     ax_d.set_ylabel("dwell time (h)", fontsize=8)
     if any(h.size and h.max() > 20 * max(np.median(h), 1e-9) for h in hours):
         set_log(ax_d, x=False)
-    for ax in (ax_b, ax_d):
-        ax.tick_params(labelsize=8)
     return _png(fig, ax_b)
 
 
