@@ -6,8 +6,9 @@
 - :mod:`roamstat.report.key` draws the figure's key in the page: its entries must be the labels
   ``ax.get_legend_handles_labels()`` returns, in the colours matplotlib reports for the artists
   (``matplotlib.colors.to_hex``).
-- :func:`roamstat.report.figures.dots` and the state figure's box plots draw what
-  ``Axes.scatter`` and ``Axes.boxplot`` draw (the same pixels but for edge anti-aliasing).
+- :func:`roamstat.report.figures.dots`, :func:`roamstat.report.figures.stairs` and the state
+  figure's box plots draw what ``Axes.scatter``, ``Axes.stairs`` and ``Axes.boxplot`` draw (the
+  same pixels but for edge anti-aliasing; stairs with the same autoscaled limits).
 - :func:`roamstat.report.curves.null_panels` labels each null's x axis by what its curve is
   indexed by (a time-indexed null must not be drawn on a step axis).
 """
@@ -117,14 +118,15 @@ def test_null_panels_label_each_x_axis_by_its_index():
     assert [e.label for e in picture.key] == ["null envelope", "observed"]
 
 
-def _pixels(draw) -> np.ndarray:
-    """RGB pixels of one 80-dpi axes with fixed limits on which ``draw(ax)`` drew."""
+def _pixels(draw, limits: bool = True) -> np.ndarray:
+    """RGB pixels of one 80-dpi axes on which ``draw(ax)`` drew, with fixed limits or autoscaled."""
     fig = Figure(figsize=(4.0, 3.0), dpi=80)
     FigureCanvasAgg(fig)
     ax = fig.add_axes((0.1, 0.1, 0.85, 0.85))
     draw(ax)
-    ax.set_xlim(0.0, 4.0)
-    ax.set_ylim(-1.0, 12.0)
+    if limits:
+        ax.set_xlim(0.0, 4.0)
+        ax.set_ylim(-1.0, 12.0)
     fig.canvas.draw()
     return np.asarray(fig.canvas.buffer_rgba())[..., :3].astype(int)
 
@@ -176,3 +178,24 @@ def test_state_box_plots_draw_what_boxplot_draws():
     _same_picture(_pixels(ours), _pixels(reference))
     with pytest.raises(AssertionError):  # narrower boxes are a different picture: the comparison can fail
         _same_picture(_pixels(lambda ax: ours(ax, 0.3)), _pixels(reference))
+
+
+def test_stairs_draw_and_autoscale_as_axes_stairs():
+    rng = np.random.default_rng(5)
+    heights, edges = np.histogram(rng.gamma(2.0, 50.0, 400), bins=30, density=True)
+    for fill, style in [(True, {"label": "observed", "alpha": 0.3}), (False, {"linewidth": 0.8})]:
+        ours = _pixels(lambda ax, fill=fill, style=style: figures.stairs(ax, heights, edges, "#8ea2bb", fill, **style),
+                       limits=False)
+        reference = _pixels(lambda ax, fill=fill, style=style: ax.stairs(heights, edges, color="#8ea2bb", fill=fill,
+                                                                         **style), limits=False)
+        _same_picture(ours, reference)
+        fig = Figure()
+        mine, theirs = fig.add_subplot(121), fig.add_subplot(122)
+        figures.stairs(mine, heights, edges, "#8ea2bb", fill, **style)
+        theirs.stairs(heights, edges, color="#8ea2bb", fill=fill, **style)
+        # same limits: the value axis starts at the baseline 0 (sticky), the edges get the margins
+        np.testing.assert_allclose([*mine.get_xlim(), *mine.get_ylim()], [*theirs.get_xlim(), *theirs.get_ylim()])
+        assert mine.get_ylim()[0] == 0.0
+    with pytest.raises(AssertionError):  # the bins in reverse are a different picture: the comparison can fail
+        _same_picture(_pixels(lambda ax: figures.stairs(ax, heights[::-1], edges, "#8ea2bb", True), limits=False),
+                      _pixels(lambda ax: ax.stairs(heights, edges, color="#8ea2bb", fill=True), limits=False))

@@ -19,7 +19,7 @@ from matplotlib.dates import AutoDateLocator, ConciseDateFormatter, date2num
 from matplotlib.figure import Figure
 from matplotlib.ticker import LogFormatter, LogLocator, MaxNLocator
 from matplotlib.transforms import ScaledTranslation
-from matplotlib.patches import PathPatch, Polygon
+from matplotlib.patches import PathPatch, Polygon, StepPatch
 from matplotlib.path import Path as MplPath
 from PIL import Image
 
@@ -161,6 +161,25 @@ def dots(ax, x, y, s: float, color, marker: str = "o", zorder: float = 1, **styl
                    **style)
 
 
+def stairs(ax, values, edges, color, fill: bool = False, **style) -> StepPatch:
+    """``ax.stairs(values, edges, color=color, fill=fill, **style)`` with its extent given at once.
+
+    ``add_patch`` (which ``stairs`` uses) walks every step of the outline as a curve segment to
+    update the limits (~5 % of the drawing time, profiled on the sample deployment); the extent
+    of a histogram is its first and last edge, zero and its largest value. Like ``stairs``, the
+    baseline 0 is a sticky edge, so the value axis starts there.
+    """
+    values, edges = np.asarray(values, float), np.asarray(edges, float)
+    style = {"linewidth": 0, "facecolor": color, **style} if fill else {"edgecolor": color, **style}
+    patch = StepPatch(values, edges, baseline=0.0, fill=fill, transform=ax.transData, **style)
+    ax.add_artist(patch)
+    patch.sticky_edges.y.append(0.0)
+    shown = values[np.isfinite(values)]
+    ax.update_datalim([(edges[0], 0.0), (edges[-1], shown.max(initial=0.0)), (edges[0], shown.min(initial=0.0))])
+    ax.autoscale_view()
+    return patch
+
+
 def _png(fig, *key_axes) -> Picture:
     """Draw ``fig`` and encode it; the key lists the labelled artists of ``key_axes``."""
     fig.canvas.draw()
@@ -252,8 +271,8 @@ def step_histogram(step_m, curves, log_axes: bool) -> Picture:
             bins = np.linspace(0.0, steps.max() * 1.0001, 30)
         # One outline artist instead of a patch per bin: same picture, a fraction of the drawing time.
         heights, _ = np.histogram(steps, bins=bins, density=True)
-        ax.stairs(heights, bins, fill=True, color="#cfd8e3", label=f"observed ({steps.size})")
-        ax.stairs(heights, bins, color="#8ea2bb", linewidth=0.8)
+        stairs(ax, heights, bins, "#cfd8e3", fill=True, label=f"observed ({steps.size})")
+        stairs(ax, heights, bins, "#8ea2bb", linewidth=0.8)
         lowest, highest = heights[heights > 0].min(), heights.max()
     for label, x, density in curves:
         density = np.asarray(density, float)

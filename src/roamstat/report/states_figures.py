@@ -28,7 +28,8 @@ from matplotlib.cbook import boxplot_stats
 from matplotlib.patches import Polygon
 from scipy import stats
 
-from roamstat.report.figures import NORMAL, Picture, _coordinate_labels, _png, _take, distance_scale, set_log
+from roamstat.report.figures import (NORMAL, Picture, _coordinate_labels, _png, _take, distance_scale, set_log,
+                                     stairs)
 from roamstat.states.families import step_model, turn_model
 
 if TYPE_CHECKING:
@@ -191,7 +192,7 @@ def state_densities(step_m, turn_rad, state, params) -> Picture:
         # Histograms as one filled outline each (stairs), not ax.hist's patch machinery.
         for ax, own, bins in ((ax_s, own_steps, step_bins), (ax_t, own_turns, turn_bins)):
             if own.size:
-                ax.stairs(np.histogram(own, bins=bins, density=True)[0], bins, fill=True, alpha=0.3, color=colour)
+                stairs(ax, np.histogram(own, bins=bins, density=True)[0], bins, colour, fill=True, alpha=0.3)
         with np.errstate(all="ignore"):
             f_step = np.exp(step_model(params.step_family, params.shape[i], params.scale[i]).logpdf(grid))
             f_turn = np.exp(turn_model(params.turn_family, params.mu[i], params.conc[i]).logpdf(theta))
