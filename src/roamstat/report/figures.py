@@ -176,7 +176,7 @@ def stairs(ax, values, edges, color, fill: bool = False, **style) -> StepPatch:
     patch.sticky_edges.y.append(0.0)
     shown = values[np.isfinite(values)]
     ax.update_datalim([(edges[0], 0.0), (edges[-1], shown.max(initial=0.0)), (edges[0], shown.min(initial=0.0))])
-    ax.autoscale_view()
+    ax.autoscale(enable=None)  # limits recomputed at the draw, as Axes.stairs asks; autoscale settings kept
     return patch
 
 
