@@ -30,7 +30,7 @@ import pandas as pd
 from matplotlib.patches import Circle
 
 from roamstat.report.figures import (GREY, NORMAL, TRACK_COLOUR, Picture, _coordinate_labels, _png, _take,
-                                     distance_scale, dots, set_log)
+                                     distance_scale, dots)
 from roamstat.report.html import esc, fmt, table
 from roamstat.report.pairs import binned_pairs, lag_range
 
@@ -185,10 +185,9 @@ def semivariance_figure(motion) -> Picture | None:
     error_var = float(np.mean(motion.error_sd_m(fit) ** 2))
     grid = np.geomspace(lag.min(), lag.max(), 200)
     model = np.asarray(fit.semivariance(grid), dtype=float) + error_var
-    fig, ax = _take("semivariance", NORMAL)
+    fig, ax = _take("semivariance", NORMAL, log="xy")
     dots(ax, lag / 3600.0, gamma, 10, GREY, label="fixes (binned pairs)")
     ax.plot(grid / 3600.0, model, color=TRACK_COLOUR, linewidth=1.2, label=f"{fit.name} + location error")
-    set_log(ax)
     ax.set_xlabel("time lag (h)", fontsize=8)
     ax.set_ylabel("semi-variance per axis (m²)", fontsize=8)
     return _png(fig, ax)
