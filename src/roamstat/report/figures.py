@@ -367,7 +367,8 @@ def nsd_envelopes(panels) -> Picture:
         ax.set_ylabel(f"NSD ({unit})", fontsize=8)
         # The x axis is labelled under the last of a run of panels with the same x (steps or days).
         last_of_run = i + 1 == len(panels) or labels[i + 1] != labels[i]
-        ax.tick_params(labelbottom=last_of_run)
+        if ax.xaxis.get_tick_params()["labelbottom"] != last_of_run:  # kept by a reused figure: no re-applying
+            ax.tick_params(labelbottom=last_of_run)
         ax.set_xlabel(labels[i] if last_of_run else "", fontsize=8)
     return _png(fig, axes[0, 0])
 
