@@ -322,8 +322,10 @@ def turn_rose(turn_rad, curves) -> Picture:
         density = counts / (turns.size * np.diff(edges))
         # The rose as one closed outline (wedges from the centre), not one bar patch per sector.
         theta, radius = np.repeat(edges, 2)[1:-1], np.repeat(density, 2)
-        ax.fill(np.mod(np.r_[theta, theta[:1]], 2 * np.pi), np.r_[radius, radius[:1]], facecolor="#cfd8e3",
-                edgecolor="#8ea2bb", linewidth=0.8, label=f"observed ({turns.size})")
+        # Added as a plain artist: the limits are set below, so add_patch's walk of the outline is not needed.
+        outline = np.column_stack([np.mod(np.r_[theta, theta[:1]], 2 * np.pi), np.r_[radius, radius[:1]]])
+        ax.add_artist(Polygon(outline, closed=True, facecolor="#cfd8e3", edgecolor="#8ea2bb", linewidth=0.8,
+                              label=f"observed ({turns.size})", transform=ax.transData))
         top = density.max()
     for label, theta, density in curves:
         density = np.asarray(density, float)
