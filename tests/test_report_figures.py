@@ -6,6 +6,9 @@
 - :mod:`roamstat.report.key` draws the figure's key in the page: its entries must be the labels
   ``ax.get_legend_handles_labels()`` returns, in the colours matplotlib reports for the artists
   (``matplotlib.colors.to_hex``).
+- :func:`roamstat.report.figures.dots`, :func:`roamstat.report.figures.stairs` and the state
+  figure's box plots draw what ``Axes.scatter``, ``Axes.stairs`` and ``Axes.boxplot`` draw (the
+  same pixels but for edge anti-aliasing; stairs with the same autoscaled limits).
 - :func:`roamstat.report.curves.null_panels` labels each null's x axis by what its curve is
   indexed by (a time-indexed null must not be drawn on a step axis).
 """
@@ -23,6 +26,7 @@ from roamstat.report import agg_text
 from roamstat.report.agg_text import TextStampCanvas
 from roamstat.report.html import figure as figure_html
 from roamstat.report.key import key_html, key_of
+from roamstat.report.states_figures import PALETTE, _boxes
 
 TEXTS = [("east (km, masked: relative to a hidden origin)", 0), ("NSD (km²)", 90), ("10⁵", 0), ("0.0025", 0),
          ("state 1 (152)", 90)]
@@ -112,3 +116,86 @@ def test_null_panels_label_each_x_axis_by_its_index():
     picture = figures.nsd_envelopes(panels)
     assert picture.png[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature (PNG spec, section 5.2)
     assert [e.label for e in picture.key] == ["null envelope", "observed"]
+
+
+def _pixels(draw, limits: bool = True) -> np.ndarray:
+    """RGB pixels of one 80-dpi axes on which ``draw(ax)`` drew, with fixed limits or autoscaled."""
+    fig = Figure(figsize=(4.0, 3.0), dpi=80)
+    FigureCanvasAgg(fig)
+    ax = fig.add_axes((0.1, 0.1, 0.85, 0.85))
+    draw(ax)
+    if limits:
+        ax.set_xlim(0.0, 4.0)
+        ax.set_ylim(-1.0, 12.0)
+    fig.canvas.draw()
+    return np.asarray(fig.canvas.buffer_rgba())[..., :3].astype(int)
+
+
+def _same_picture(ours: np.ndarray, reference: np.ndarray) -> None:
+    # Anti-aliased edges differ where a Line2D's markers are snapped to whole pixels and a
+    # collection's are not (up to ~5 % of the ink for many large overlapping triangles); anything
+    # drawn differently moves whole marks. At most 0.5 % of the pixels may differ strongly and the
+    # ink by 8 % (judgement, no source).
+    strong = (np.abs(ours - reference).max(axis=2) > 60).mean()
+    ink = np.abs(ours - 255).sum() / np.abs(reference - 255).sum()
+    assert 0.0 <= strong < 0.005 and 0.92 < ink < 1.08
+
+
+def test_dots_draw_what_scatter_draws():
+    rng = np.random.default_rng(3)
+    x, y = rng.uniform(0.2, 3.8, 60), rng.uniform(0.0, 11.0, 60)
+    for s, marker, style, scatter_style in [(4, "o", {}, {}), (90, "^", {"markeredgecolor": "white"},
+                                                                {"edgecolors": "white"}),
+                                            (16, "x", {"alpha": 0.6, "markeredgewidth": 0.9},
+                                             {"alpha": 0.6, "linewidths": 0.9})]:
+        ours = _pixels(lambda ax, s=s, marker=marker, style=style: figures.dots(ax, x, y, s, "#1f5fa8", marker, **style))
+        reference = _pixels(lambda ax, s=s, marker=marker, style=scatter_style: ax.scatter(
+            x, y, s=s, marker=marker, color="#1f5fa8", **style))
+        _same_picture(ours, reference)
+    # A different marker size is a different picture: the comparison can fail.
+    with pytest.raises(AssertionError):
+        _same_picture(_pixels(lambda ax: figures.dots(ax, x, y, 40, "#1f5fa8")),
+                      _pixels(lambda ax: ax.scatter(x, y, s=4, color="#1f5fa8")))
+
+
+def test_state_box_plots_draw_what_boxplot_draws():
+    rng = np.random.default_rng(4)
+    # Skewed dwell times with outliers, a tight one and a state without runs (drawn as nothing).
+    samples = [rng.gamma(1.5, 2.0, 80), np.r_[rng.normal(6.0, 0.5, 40), 11.5], np.array([np.nan])]
+    states = np.array([1, 2, 3])
+
+    def reference(ax):
+        box = ax.boxplot(samples, positions=states, widths=0.5, patch_artist=True, showfliers=True)
+        for patch, k in zip(box["boxes"], states):
+            patch.set_facecolor(PALETTE[k - 1])
+            patch.set_alpha(0.6)
+        ax.set_xticks(states, [f"state {k}" for k in states])  # as the figure labels them
+
+    def ours(ax, width=0.5):
+        _boxes(ax, samples, states, width)
+        ax.set_xticks(states, [f"state {k}" for k in states])
+
+    _same_picture(_pixels(ours), _pixels(reference))
+    with pytest.raises(AssertionError):  # narrower boxes are a different picture: the comparison can fail
+        _same_picture(_pixels(lambda ax: ours(ax, 0.3)), _pixels(reference))
+
+
+def test_stairs_draw_and_autoscale_as_axes_stairs():
+    rng = np.random.default_rng(5)
+    heights, edges = np.histogram(rng.gamma(2.0, 50.0, 400), bins=30, density=True)
+    for fill, style in [(True, {"label": "observed", "alpha": 0.3}), (False, {"linewidth": 0.8})]:
+        ours = _pixels(lambda ax, fill=fill, style=style: figures.stairs(ax, heights, edges, "#8ea2bb", fill, **style),
+                       limits=False)
+        reference = _pixels(lambda ax, fill=fill, style=style: ax.stairs(heights, edges, color="#8ea2bb", fill=fill,
+                                                                         **style), limits=False)
+        _same_picture(ours, reference)
+        fig = Figure()
+        mine, theirs = fig.add_subplot(121), fig.add_subplot(122)
+        figures.stairs(mine, heights, edges, "#8ea2bb", fill, **style)
+        theirs.stairs(heights, edges, color="#8ea2bb", fill=fill, **style)
+        # same limits: the value axis starts at the baseline 0 (sticky), the edges get the margins
+        np.testing.assert_allclose([*mine.get_xlim(), *mine.get_ylim()], [*theirs.get_xlim(), *theirs.get_ylim()])
+        assert mine.get_ylim()[0] == 0.0
+    with pytest.raises(AssertionError):  # the bins in reverse are a different picture: the comparison can fail
+        _same_picture(_pixels(lambda ax: figures.stairs(ax, heights[::-1], edges, "#8ea2bb", True), limits=False),
+                      _pixels(lambda ax: ax.stairs(heights, edges, color="#8ea2bb", fill=True), limits=False))

@@ -30,7 +30,7 @@ import pandas as pd
 from matplotlib.patches import Circle
 
 from roamstat.report.figures import (GREY, NORMAL, TRACK_COLOUR, Picture, _coordinate_labels, _png, _take,
-                                     distance_scale, set_log)
+                                     distance_scale, dots)
 from roamstat.report.html import esc, fmt, table
 from roamstat.report.pairs import binned_pairs, lag_range
 
@@ -132,11 +132,11 @@ def smoothed_figure(smoothed_a: pd.DataFrame, fixes_a: pd.DataFrame, masked: boo
     ry = fixes_a["y_m"].to_numpy(float) if len(fixes_a) else np.empty(0)
     scale, unit = distance_scale(np.concatenate([sx, sy, rx, ry]))
     fig, ax = _take("smoothed", NORMAL)
-    ax.scatter(rx / scale, ry / scale, s=5, color=GREY, alpha=0.7, label=f"raw fixes ({rx.size})")
+    dots(ax, rx / scale, ry / scale, 5, GREY, alpha=0.7, label=f"raw fixes ({rx.size})")
     ax.plot(sx / scale, sy / scale, color=TRACK_COLOUR, linewidth=0.8, label="smoothed")
     if len(grid):
-        ax.scatter(grid["x_m"].to_numpy(float) / scale, grid["y_m"].to_numpy(float) / scale, s=3,
-                   color="#ef6c00", label=f"predicted ({len(grid)})")
+        dots(ax, grid["x_m"].to_numpy(float) / scale, grid["y_m"].to_numpy(float) / scale, 3, "#ef6c00",
+             label=f"predicted ({len(grid)})")
     step = np.hypot(np.diff(sx), np.diff(sy))
     large = np.flatnonzero(se > np.median(step)) if step.size else np.empty(0, int)
     for i in large[np.argsort(se[large])[::-1][:MAX_CIRCLES]]:
@@ -185,11 +185,9 @@ def semivariance_figure(motion) -> Picture | None:
     error_var = float(np.mean(motion.error_sd_m(fit) ** 2))
     grid = np.geomspace(lag.min(), lag.max(), 200)
     model = np.asarray(fit.semivariance(grid), dtype=float) + error_var
-    fig, ax = _take("semivariance", NORMAL)
-    ax.scatter(lag / 3600.0, gamma, s=10, color=GREY, label="fixes (binned pairs)")
+    fig, ax = _take("semivariance", NORMAL, log="xy")
+    dots(ax, lag / 3600.0, gamma, 10, GREY, label="fixes (binned pairs)")
     ax.plot(grid / 3600.0, model, color=TRACK_COLOUR, linewidth=1.2, label=f"{fit.name} + location error")
-    set_log(ax)
     ax.set_xlabel("time lag (h)", fontsize=8)
     ax.set_ylabel("semi-variance per axis (m²)", fontsize=8)
-    ax.tick_params(labelsize=8)
     return _png(fig, ax)
