@@ -201,8 +201,9 @@ def search_fun_jac(model: str, q, t, span: float, dt_days: float):
         return d * s, np.stack([s, -slope, -slope * (t - theta) / phi], axis=-1)
     d, theta1, phi1, u, phi2 = cols[:5]
     r = cols[5] if model == "mixed_migrant" else 1.0
-    room = span - theta1 - _gap_lo(span, dt_days)
-    theta2 = theta1 + _gap_lo(span, dt_days) + u * np.maximum(room, 0.0)
+    gap = _gap_lo(span, dt_days)
+    room = span - theta1 - gap
+    theta2 = theta1 + gap + u * np.maximum(room, 0.0)
     s1, s2 = _sigmoid(t, theta1, phi1), _sigmoid(t, theta2, phi2)
     slope1, slope2 = d * s1 * (1.0 - s1) / phi1, r * d * s2 * (1.0 - s2) / phi2  # d f / d (-theta) per sigmoid
     dtheta2_dtheta1 = np.where(room > 0, 1.0 - u, 1.0)

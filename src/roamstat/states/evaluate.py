@@ -112,7 +112,7 @@ def loglik_gradient(theta, shape, scale, conc, step_norm, step_slope, turn_norm,
     # forward: alpha[t] = Pr(C_t | x up to t); dens[t] = f(x_t | C_t) / max over states
     alpha = np.empty((n, k))
     dens = np.empty((n, k))
-    prior = np.empty((n, k))  # filled by forward_step (Pr(C_t | x before t)); not needed here
+    prior_t = np.empty(k)  # Pr(C_t | x before t) from forward_step; only alpha is kept
     lp = np.empty(k)
     ll, product = 0.0, 1.0
     for t in range(n):
@@ -127,7 +127,7 @@ def loglik_gradient(theta, shape, scale, conc, step_norm, step_slope, turn_norm,
         ll += top
         for j in range(k):
             dens[t, j] = np.exp(lp[j] - top)
-        total = forward_step(t, restart[t], delta, gamma, dens, prior, alpha)
+        total = forward_step(t, restart[t], delta, gamma, dens, prior_t, alpha)
         if total <= 0.0 or not np.isfinite(total):
             return -np.inf, grad
         scale_t = 1.0 / total

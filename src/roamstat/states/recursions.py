@@ -67,11 +67,12 @@ def forward_loglik(logp, restart, delta, gamma):
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def forward_step(t, restart, delta, gamma, dens, prior, alpha):
+def forward_step(t, restart, delta, gamma, dens, prior_t, alpha):
     """Slot ``t`` of the scaled forward recursion on (S, K) tables; returns the normaliser.
 
-    ``prior[t]`` = ``delta`` at a restart, else ``alpha[t - 1]`` Gamma (already
-    normalised); ``alpha[t]`` = ``prior[t]`` x ``dens[t]``, left unnormalised.
+    ``prior_t`` (K,) receives Pr(C_t | x before t): ``delta`` at a restart, else
+    ``alpha[t - 1]`` Gamma (already normalised); ``alpha[t]`` = ``prior_t`` x ``dens[t]``,
+    left unnormalised.
     """
     k = delta.size
     total = 0.0
@@ -82,7 +83,7 @@ def forward_step(t, restart, delta, gamma, dens, prior, alpha):
             p = 0.0
             for i in range(k):
                 p += alpha[t - 1, i] * gamma[i, j]
-        prior[t, j] = p
+        prior_t[j] = p
         alpha[t, j] = p * dens[t, j]
         total += alpha[t, j]
     return total
@@ -117,7 +118,7 @@ def forward_backward(logp, restart, delta, gamma):
         for j in range(k):
             dens[t, j] = np.exp(logp[t, j] - m)
     for t in range(n):
-        total = forward_step(t, restart[t], delta, gamma, dens, prior, alpha)
+        total = forward_step(t, restart[t], delta, gamma, dens, prior[t], alpha)
         if total <= 0.0 or not np.isfinite(total):
             return -np.inf, alpha, prior, beta
         ll += np.log(total)
