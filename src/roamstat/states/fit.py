@@ -1,7 +1,8 @@
 """Maximum-likelihood fit of a K-state movement HMM from many random starts.
 
 The negative log-likelihood (scaled forward algorithm) is minimised over the
-unconstrained parameters (:mod:`roamstat.states.params`) by BFGS with
+unconstrained parameters (:mod:`roamstat.states.params`) by BFGS
+(:mod:`roamstat.states.bfgs`) with
 the exact gradient of :meth:`Observations.loglik_and_gradient` (bounds on the
 free parameters are enforced by clipping), from ``n_starts`` starting points: the first from
 quantiles of the step lengths, the others drawn at random around the data
@@ -61,11 +62,10 @@ from __future__ import annotations
 import math
 import warnings
 from dataclasses import dataclass
-from typing import Any
 
 import numpy as np
-from scipy import optimize
 
+from roamstat.states import bfgs
 from roamstat.states.chain import Chain
 from roamstat.states.families import concentration, start_step, step_model
 from roamstat.states.likelihood import Observations
@@ -85,6 +85,9 @@ MU = (-3.0 * math.pi, 3.0 * math.pi)
 
 #: Gradient norm at which BFGS stops (log-likelihood units per unit of the free parameters).
 GTOL = 1e-3
+
+#: BFGS iterations of one start before it stops unconverged (judgement, no source: rarely reached).
+MAX_ITERATIONS = 1000
 
 #: Relative rounding of a double, square-rooted: the reach of a gradient on a long chain.
 SQRT_EPS = math.sqrt(np.finfo(float).eps)
@@ -214,14 +217,13 @@ def _minimise(obs: Observations, layout: Layout, lo: np.ndarray, hi: np.ndarray,
             return HUGE, np.zeros_like(theta)
         return -ll, np.where(inside == theta, -grad, 0.0)  # flat beyond the clipping bounds
 
-    options: dict[str, Any] = {"maxiter": 1000, "gtol": gtol}
     callback = None
     if hess_inv0 is not None:
         callback = _stalled(POLISH_PATIENCE, BEST_TOLERANCE)
         hess_inv0 = 0.5 * (hess_inv0 + hess_inv0.T)
-        if np.all(np.isfinite(hess_inv0)) and np.all(np.linalg.eigvalsh(hess_inv0) > 0):
-            options["hess_inv0"] = hess_inv0  # else BFGS starts from the identity, as usual
-    result = optimize.minimize(nll, theta0, method="BFGS", jac=True, options=options, callback=callback)
+        if not (np.all(np.isfinite(hess_inv0)) and np.all(np.linalg.eigvalsh(hess_inv0) > 0)):
+            hess_inv0 = None  # BFGS starts from the identity, as usual
+    result = bfgs.minimise(nll, theta0, hess_inv0, gtol=gtol, maxiter=MAX_ITERATIONS, callback=callback)
     if callback is not None and callback.stalled:
         result.success = True  # stopped by the stall rule: converged by that rule's standard
     return result
