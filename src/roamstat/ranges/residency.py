@@ -155,64 +155,6 @@ def _natural(model: str, q, span: float, dt_days: float):
     return np.array(natural if model == "migrant" else natural + [q[5] * d])
 
 
-def search_jacobian(model: str, q, t, span: float, dt_days: float) -> np.ndarray:
-    """Derivatives of :func:`predict` at times ``t`` with respect to the search vector ``q``, shape (n, len(q)).
-
-    With s = expit((t - theta) / phi) and s' = s (1 - s): d s / d theta = -s' / phi and
-    d s / d phi = -s' (t - theta) / phi²; the resident form A (1 - exp(-t / tau)) has
-    d / dA = 1 - exp(-t / tau) and d / dtau = -A exp(-t / tau) t / tau².  The migrants
-    are searched as (d, theta1, phi1, u, phi2[, r]) with theta2 = theta1 + gap + u
-    max(span - theta1 - gap, 0) and d2 = r d (r = 1 for the migrant), hence the chain
-    rule through theta2 (:func:`_natural`).
-    """
-    if model not in ("resident", "disperser", "migrant", "mixed_migrant"):
-        raise ValueError(f"no search Jacobian for residency model {model!r}")
-    return search_fun_jac(model, np.asarray(q, float)[None, :], t, span, dt_days)[1][0]
-
-
-def search_fun_jac(model: str, q, t, span: float, dt_days: float):
-    """NSD and its :func:`search_jacobian` for a batch of search vectors at once.
-
-    The sigmoid terms are computed once and shared by both.
-
-    Parameters
-    ----------
-    q : numpy.ndarray
-        (b, k) search vectors of ``model`` (resident, disperser, migrant, mixed_migrant).
-
-    Returns
-    -------
-    f : numpy.ndarray
-        (b, n) NSD (km²) at the days ``t``.
-    jac : numpy.ndarray
-        (b, n, k) derivatives with respect to the search vector.
-    """
-    t = np.asarray(t, float)[None, :]
-    cols = [q[:, i:i + 1] for i in range(q.shape[1])]
-    if model == "resident":
-        a, tau = cols
-        decay, rise = np.exp(-t / tau), -np.expm1(-t / tau)
-        return a * rise, np.stack([rise, -a * decay * t / tau**2], axis=-1)
-    if model == "disperser":
-        d, theta, phi = cols
-        s = _sigmoid(t, theta, phi)
-        slope = d * s * (1.0 - s) / phi
-        return d * s, np.stack([s, -slope, -slope * (t - theta) / phi], axis=-1)
-    d, theta1, phi1, u, phi2 = cols[:5]
-    r = cols[5] if model == "mixed_migrant" else 1.0
-    gap = _gap_lo(span, dt_days)
-    room = span - theta1 - gap
-    theta2 = theta1 + gap + u * np.maximum(room, 0.0)
-    s1, s2 = _sigmoid(t, theta1, phi1), _sigmoid(t, theta2, phi2)
-    slope1, slope2 = d * s1 * (1.0 - s1) / phi1, r * d * s2 * (1.0 - s2) / phi2  # d f / d (-theta) per sigmoid
-    dtheta2_dtheta1 = np.where(room > 0, 1.0 - u, 1.0)
-    jac = [s1 - r * s2, -slope1 + slope2 * dtheta2_dtheta1, -slope1 * (t - theta1) / phi1,
-           slope2 * np.maximum(room, 0.0), slope2 * (t - theta2) / phi2]
-    if model == "mixed_migrant":
-        jac.append(-d * s2)
-    return d * (s1 - r * s2), np.stack(jac, axis=-1)
-
-
 def fit_model(model: str, t, y, dt_days: float):
     """Least-squares fit of one curve: (parameters, RSS) or (None, nan) if no start converged."""
     if model == "sedentary":
@@ -249,64 +191,29 @@ def fit_model(model: str, t, y, dt_days: float):
 
 
 def explore(model: str, q, t, y, span: float, dt_days: float, bounds, n_steps: int):
-    """A few projected Levenberg-Marquardt steps from every start at once: (search vectors, RSS).
+    """A few projected Levenberg-Marquardt steps from every start: (search vectors, RSS).
 
     Each step solves (JᵀJ + lambda diag(JᵀJ)) delta = -Jᵀr (Marquardt 1963) and
     projects q + delta onto the box (the projected LM of Kanzow, Yamashita &
     Fukushima 2004); a step that lowers the RSS is kept and lambda divided by 3,
-    otherwise lambda doubles.  One evaluation per step, vectorised over the
-    starts: the screen only ranks the starts for the polish by
-    ``scipy.optimize.least_squares``, and solving each start by itself cost
-    ~0.4 ms of scipy bookkeeping per iteration (measured).
-
-    References
-    ----------
-    Marquardt, D. W. (1963). An algorithm for least-squares estimation of
-    nonlinear parameters. J. Soc. Indust. Appl. Math. 11, 431-441.
-    Kanzow, C., Yamashita, N. & Fukushima, M. (2004). Levenberg-Marquardt
-    methods with strong local convergence properties for solving nonlinear
-    equations with convex constraints. J. Comput. Appl. Math. 172, 375-397.
+    otherwise lambda doubles.  One evaluation per step: the screen only ranks
+    the starts for the polish.  Compiled: :func:`roamstat.ranges.nsd_fit.screen`
+    (full references there).
     """
-    lo, hi = bounds
-    q = np.clip(np.asarray(q, float), lo, hi)
-    with np.errstate(all="ignore"):  # a start may overflow the curves: its RSS is then inf and it is not chosen
-        f, jac = search_fun_jac(model, q, t, span, dt_days)
-        res = f - y
-        rss = _finite_rss(res)
-        damping = np.full(len(q), 1e-3)
-        for _ in range(n_steps - 1):
-            normal = np.einsum("bnk,bnm->bkm", jac, jac)
-            diag = np.diagonal(normal, axis1=1, axis2=2)
-            diag = np.maximum(diag, 1e-12 * diag.max(axis=1, keepdims=True) + 1e-300)
-            system = normal + damping[:, None, None] * diag[:, :, None] * np.eye(q.shape[1])
-            grad = np.einsum("bnk,bn->bk", jac, res)
-            ok = np.isfinite(system).all(axis=(1, 2)) & np.isfinite(grad).all(axis=1)
-            step = np.zeros_like(q)
-            step[ok] = -np.linalg.solve(system[ok], grad[ok][:, :, None])[:, :, 0]
-            trial = np.clip(q + step, lo, hi)
-            f_new, jac_new = search_fun_jac(model, trial, t, span, dt_days)
-            res_new = f_new - y
-            rss_new = _finite_rss(res_new)
-            better = rss_new < rss
-            q[better], res[better], jac[better], rss[better] = trial[better], res_new[better], jac_new[better], rss_new[better]
-            damping = np.where(better, damping / 3.0, damping * 2.0)
-    return q, rss
+    from roamstat.ranges.nsd_fit import screen  # imported late: numba is slow to load
 
-
-def _finite_rss(res):
-    rss = np.sum(res * res, axis=1)
-    return np.where(np.isfinite(rss), rss, np.inf)
+    return screen(model, q, t, y, span, _gap_lo(span, dt_days), bounds, n_steps)
 
 
 def _solve(model, start, t, y, span, dt_days, bounds, scale, max_nfev=400):
     """(search vector, RSS, converged) from one start, or None when the solver fails.
 
-    The polish is :func:`roamstat.ranges.nsd_polish.polish`: the trust-region
+    The polish is :func:`roamstat.ranges.nsd_fit.polish`: the trust-region
     reflective steps of ``scipy.optimize.least_squares(method="trf")``
     (Branch, Coleman & Li 1999), compiled, so a polish costs the curve and a
     small SVD per evaluation instead of ~0.2 ms of scipy bookkeeping.
     """
-    from roamstat.ranges.nsd_polish import FAILED, polish  # imported late: numba is slow to load
+    from roamstat.ranges.nsd_fit import FAILED, polish  # imported late: numba is slow to load
 
     q, res, _nfev, status = polish(model, start, t, y, span, _gap_lo(span, dt_days), bounds, scale, max_nfev)
     if status == FAILED:

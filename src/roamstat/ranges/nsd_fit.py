@@ -1,19 +1,28 @@
-"""Compiled polish of one NSD curve: a bounded trust-region reflective least-squares fit.
+"""Compiled least-squares fits of one NSD curve: the screen of its starts and the bounded polish.
 
-The algorithm is the trust-region reflective method of Branch, Coleman & Li
-(1999) with the exact (SVD) subproblem solve of Moré (1978), step by step as
-``scipy.optimize.least_squares(method="trf", tr_solver="exact")`` runs it
-with an array ``x_scale`` and the default tolerances, so the polish stops
-where scipy's would and returns the same optimum (to rounding: tested in
-tests/test_ranges_nsd_polish.py).  It is compiled because a residency fit is
-many small problems: scipy's per-iteration Python bookkeeping cost about
-0.2 ms, several times the curve and its Jacobian at ~1,000 points.
+The screen (:func:`screen`) takes a few projected Levenberg-Marquardt steps
+from every start (Marquardt 1963; Kanzow, Yamashita & Fukushima 2004) to
+rank them.  The polish (:func:`polish`) is the trust-region reflective
+method of Branch, Coleman & Li (1999) with the exact (SVD) subproblem solve
+of Moré (1978), step by step as ``scipy.optimize.least_squares(method="trf",
+tr_solver="exact")`` runs it with an array ``x_scale`` and the default
+tolerances, so it stops where scipy's would, after as many evaluations, at
+the same optimum (to rounding; tests/test_ranges_nsd_fit.py).  Both are
+compiled because a residency fit is many small problems: scipy's
+per-iteration Python bookkeeping cost about 0.2 ms, several times the curve
+and its Jacobian at ~1,000 points (measured).
 
-The curves are those of :mod:`roamstat.ranges.residency` in its search
-variables (``search_fun_jac``), one vector at a time.
+The curves (:func:`curve_residuals_jac`) are those of
+:func:`roamstat.ranges.residency.predict` in the search variables of
+:func:`roamstat.ranges.residency._natural`, one vector at a time.
 
 References
 ----------
+Marquardt, D. W. (1963). An algorithm for least-squares estimation of
+nonlinear parameters. J. Soc. Indust. Appl. Math. 11, 431-441.
+Kanzow, C., Yamashita, N. & Fukushima, M. (2004). Levenberg-Marquardt
+methods with strong local convergence properties for solving nonlinear
+equations with convex constraints. J. Comput. Appl. Math. 172, 375-397.
 Branch, M. A., Coleman, T. F. & Li, Y. (1999). A subspace, interior, and
 conjugate gradient method for large-scale bound-constrained minimization
 problems. SIAM J. Sci. Comput. 21, 1-23.
@@ -47,12 +56,15 @@ def _expit(z):
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
 def curve_residuals_jac(code, q, t, y, span, gap, f, jac):
-    """Residuals (curve - ``y``) into ``f`` and the search Jacobian into ``jac`` for one search vector ``q``.
+    """Residuals (curve - ``y``) into ``f`` and their derivatives with respect to ``q`` into ``jac``.
 
-    The formulas are those of ``residency.search_fun_jac`` (derivatives of the
-    sigmoid s = expit((t - theta) / phi): ds/dtheta = -s (1 - s) / phi, ds/dphi
-    = -s (1 - s) (t - theta) / phi²), written per point so that nothing is
-    stacked; ``gap`` is ``residency._gap_lo(span, dt_days)``.
+    ``code`` is ``CURVE_CODES[model]``; ``gap`` is ``residency._gap_lo(span, dt_days)``.
+    With s = expit((t - theta) / phi) and s' = s (1 - s): d s / d theta = -s' / phi and
+    d s / d phi = -s' (t - theta) / phi²; the resident form A (1 - exp(-t / tau)) has
+    d / dA = 1 - exp(-t / tau) and d / dtau = -A exp(-t / tau) t / tau².  The migrants
+    are searched as (d, theta1, phi1, u, phi2[, r]) with theta2 = theta1 + gap + u
+    max(span - theta1 - gap, 0) and d2 = r d (r = 1 for the migrant), hence the chain
+    rule through theta2.  Written per point: nothing is stacked, shared terms once.
     """
     if code == 0:
         a, tau = q[0], q[1]
@@ -271,6 +283,61 @@ def _termination(reduction, cost, step_norm, x_norm, ratio):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
+def _finite_rss(res):
+    rss = res @ res
+    return rss if np.isfinite(rss) else np.inf
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def _screen(code, starts, t, y, span, gap, lb, ub, n_steps):
+    b, k = starts.shape
+    q_out, rss_out = np.empty_like(starts), np.empty(b)
+    f, jac = np.empty(t.size), np.empty((t.size, k))
+    f_new, jac_new = np.empty(t.size), np.empty((t.size, k))
+    for i in range(b):
+        q = np.minimum(np.maximum(starts[i], lb), ub)
+        curve_residuals_jac(code, q, t, y, span, gap, f, jac)
+        rss = _finite_rss(f)
+        damping = 1e-3
+        for _ in range(n_steps - 1):
+            system = jac.T @ jac
+            diag = np.diag(system).copy()
+            diag = np.maximum(diag, 1e-12 * diag.max() + 1e-300)
+            for j in range(k):
+                system[j, j] += damping * diag[j]
+            grad = jac.T @ f
+            step = np.zeros(k)
+            if np.all(np.isfinite(system)) and np.all(np.isfinite(grad)):
+                step = -np.linalg.solve(system, grad)
+            trial = np.minimum(np.maximum(q + step, lb), ub)
+            curve_residuals_jac(code, trial, t, y, span, gap, f_new, jac_new)
+            rss_new = _finite_rss(f_new)
+            if rss_new < rss:
+                q, rss = trial, rss_new
+                f, f_new = f_new, f
+                jac, jac_new = jac_new, jac
+                damping /= 3.0
+            else:
+                damping *= 2.0
+        q_out[i], rss_out[i] = q, rss
+    return q_out, rss_out
+
+
+def screen(model: str, starts, t, y, span: float, gap: float, bounds, n_steps: int):
+    """A few projected Levenberg-Marquardt steps from every start: (search vectors, RSS).
+
+    Each step solves (JᵀJ + lambda diag(JᵀJ)) delta = -Jᵀr (Marquardt 1963),
+    projects q + delta onto the box (Kanzow, Yamashita & Fukushima 2004) and
+    is kept when it lowers the RSS (lambda / 3), else refused (lambda x 2);
+    one curve evaluation per step (references in the module docstring).  A
+    start whose curve overflows has RSS inf.
+    """
+    lo, hi = (np.asarray(b, float) for b in bounds)
+    return _screen(CURVE_CODES[model], np.ascontiguousarray(starts, dtype=float), np.ascontiguousarray(t, dtype=float),
+                   np.ascontiguousarray(y, dtype=float), float(span), float(gap), lo, hi, int(n_steps))
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
 def _polish(code, x0, t, y, span, gap, lb, ub, scale, max_nfev):
     n, m = x0.size, t.size
     x = _strictly_feasible(x0, lb, ub, 1e-10)
@@ -358,8 +425,8 @@ def polish(model: str, start, t, y, span: float, gap: float, bounds, scale, max_
     Parameters
     ----------
     model : str
-        resident, disperser, migrant or mixed_migrant (search variables of
-        ``residency.search_fun_jac``).
+        resident, disperser, migrant or mixed_migrant (in the search
+        variables of ``residency._natural``).
     start : numpy.ndarray
         Search vector inside ``bounds`` (``lo, hi``).
     t, y : numpy.ndarray

@@ -6,8 +6,9 @@ import numpy as np
 import pytest
 from scipy.optimize import least_squares
 
-from roamstat.ranges.nsd_polish import FAILED, curve_residuals_jac, polish
-from roamstat.ranges.residency import _gap_lo, _starts_and_bounds, search_fun_jac
+from roamstat.ranges.nsd_fit import FAILED, curve_residuals_jac, polish
+from nsd_reference import search_fun_jac
+from roamstat.ranges.residency import _gap_lo, _starts_and_bounds
 
 MODELS = ["resident", "disperser", "migrant", "mixed_migrant"]
 CODES = {"resident": 0, "disperser": 1, "migrant": 2, "mixed_migrant": 3}
