@@ -105,3 +105,6 @@ def test_start_with_overflowing_curve_fails_as_scipy_raises():
     with pytest.raises(ValueError), np.errstate(all="ignore"):
         _scipy_trf("disperser", start, t, y, (lo, hi), np.ones(3), 400)
     assert polish("disperser", start, t, y, 10.0, 0.0, (lo, hi), np.ones(3))[3] == FAILED
+    with pytest.raises(ValueError):  # scipy refuses a start outside the box
+        _scipy_trf("disperser", hi * 1.01, t, y, (lo, hi), np.ones(3), 400)
+    assert polish("disperser", hi * 1.01, t, y, 10.0, 0.0, (lo, hi), np.ones(3))[3] == FAILED

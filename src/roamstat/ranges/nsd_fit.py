@@ -443,13 +443,14 @@ def polish(model: str, start, t, y, span: float, gap: float, bounds, scale, max_
     (numpy.ndarray, numpy.ndarray, int, int)
         Search vector, residuals, evaluations and status as scipy numbers it
         (0: evaluations exhausted, 1: gradient, 2: RSS change, 3: step size,
-        4: both 2 and 3 below 1e-8; ``FAILED``: start not finite or a
-        degenerate subproblem, where scipy raises).
+        4: both 2 and 3 below 1e-8; ``FAILED``: a start outside the bounds
+        or with a curve that is not finite, or a degenerate subproblem,
+        where scipy raises).
     """
     lo, hi = (np.asarray(b, float) for b in bounds)
     x0 = np.asarray(start, float)
     if not np.all((x0 >= lo) & (x0 <= hi)):
-        raise ValueError("start outside the bounds")
+        return x0, np.full(len(t), np.nan), 0, FAILED  # scipy refuses such a start
     try:
         return _polish(CURVE_CODES[model], x0, np.ascontiguousarray(t, dtype=float),
                        np.ascontiguousarray(y, dtype=float), float(span), float(gap), lo, hi,
