@@ -81,7 +81,7 @@ def minimise(fun: Objective, x0, hess_inv0: np.ndarray | None = None, gtol: floa
     H = np.eye(x.size) if hess_inv0 is None else np.array(hess_inv0, dtype=float)
     previous_f = f + float(np.linalg.norm(g)) / 2.0
     message, success, nit, restarted = "Optimization terminated successfully.", True, 0, False
-    while np.max(np.abs(g), initial=0.0) > gtol:
+    while np.abs(g).max() > gtol:
         if nit >= maxiter:
             message, success = "Maximum number of iterations has been exceeded.", False
             break
@@ -121,7 +121,8 @@ def _updated(H: np.ndarray, s: np.ndarray, y: np.ndarray) -> np.ndarray:
     sy = float(s @ y)
     rho = 1000.0 if sy == 0.0 else 1.0 / sy
     u = H @ y
-    return H - rho * (np.outer(s, u) + np.outer(u, s)) + (rho * (1.0 + rho * float(y @ u))) * np.outer(s, s)
+    su = np.outer(s, u)  # u s' is its transpose: one outer product fewer
+    return H - rho * (su + su.T) + (rho * (1.0 + rho * float(y @ u))) * np.outer(s, s)
 
 
 class _Counted:
