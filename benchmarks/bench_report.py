@@ -6,14 +6,15 @@
    prints seconds per animal per worker (goal <= 0.3 s) and the CPU seconds per animal of the
    drawing process (with 1 worker the main process draws).
 2. `roamstat run` on the sample with `--workers 1` against `roamstat nulltest` (steps, fits and
-   the null simulations alone) on the same input, measured side by side (goal: ratio <= 2).
+   the null simulations alone) on the same input, measured side by side in ``--pairs`` back-to-back
+   pairs (goal: ratio <= 2; the median is printed, as a shared machine's speed drifts).
 3. A large deployment (default 1,000 animals x 2,000 fixes, simulated correlated random walks)
    run end to end with `--workers 2`, report included; prints the wall time, its stages, the
    peak memory (proportional set size of the run and its workers together, sampled every 0.5 s) and
    checks that every link and image of report.html and the animal pages resolves.
    This may take many minutes: shrink it with --animals/--fixes.
 
-    python benchmarks/bench_report.py [--animals 1000] [--fixes 2000] [--replicates 199] [--skip-large | --skip-small]
+    python benchmarks/bench_report.py [--animals 1000] [--fixes 2000] [--replicates 199] [--pairs 3] [--skip-large | --skip-small]
 """
 
 from __future__ import annotations
@@ -22,6 +23,7 @@ import argparse
 import json
 import os
 import shutil
+import statistics
 import subprocess
 import sys
 import threading
@@ -167,6 +169,7 @@ def main() -> None:
     parser.add_argument("--animals", type=int, default=1000)
     parser.add_argument("--fixes", type=int, default=2000)
     parser.add_argument("--replicates", type=int, default=199)
+    parser.add_argument("--pairs", type=int, default=3, help="nulltest/run pairs of part 2")
     parser.add_argument("--skip-large", action="store_true", help="only parts 1 and 2")
     parser.add_argument("--skip-small", action="store_true", help="only part 3")
     args = parser.parse_args()
@@ -182,13 +185,17 @@ def main() -> None:
                       f"worker (goal {GOAL_PER_ANIMAL_S}, ratio {per / GOAL_PER_ANIMAL_S:.2f}); main-process CPU "
                       f"{cpu / n:.3f} s per animal (load average {os.getloadavg()[0]:.1f})")
 
-        print("2. whole run against its null simulations, sample, --workers 1")
+        print(f"2. whole run against its null simulations, sample, --workers 1, {args.pairs} pairs")
         out = WORK / "run-sample"
-        nulls = roamstat("nulltest", str(SAMPLE), "--out", str(WORK / "nulltest-sample"), "--workers", "1")
-        whole = roamstat("run", str(SAMPLE), "--out", str(out), "--workers", "1")
-        stages = {s["stage"]: s["duration_s"] for s in json.loads((out / "manifest.json").read_text())["stages"]}
-        print(f"   nulltest {nulls:.2f} s, run {whole:.2f} s: ratio {whole / nulls:.2f} (goal <= {GOAL_RUN_RATIO}); "
-              f"report stage {stages.get('report', float('nan')):.2f} s")
+        ratios = []
+        for _ in range(args.pairs):  # each pair back to back: a shared machine's speed drifts over minutes
+            nulls = roamstat("nulltest", str(SAMPLE), "--out", str(WORK / "nulltest-sample"), "--workers", "1")
+            whole = roamstat("run", str(SAMPLE), "--out", str(out), "--workers", "1")
+            ratios.append(whole / nulls)
+            stages = {s["stage"]: s["duration_s"] for s in json.loads((out / "manifest.json").read_text())["stages"]}
+            print(f"   nulltest {nulls:.2f} s, run {whole:.2f} s: ratio {whole / nulls:.2f} (goal <= {GOAL_RUN_RATIO}); "
+                  f"report stage {stages.get('report', float('nan')):.2f} s (load average {os.getloadavg()[0]:.1f})")
+        print(f"   median ratio {statistics.median(ratios):.2f} over {len(ratios)} pairs (goal <= {GOAL_RUN_RATIO})")
 
     if not args.skip_large:
         print(f"3. {args.animals} animals x {args.fixes} fixes, --workers 2, end to end")
