@@ -30,6 +30,7 @@ from .kalman import MOTION_MODELS, MOVEMENT_PARAMS, PARAM_KEYS, RANGE_RESIDENT, 
 from .kalman import position_acf as _acf
 from .kalman import semivariance as _semivariance
 from .likelihood import Track, conditional_loglik, prepare_track
+from .ou_gradient import ou_loglik_gradient
 
 MIN_FIXES = 10          # fewer fixes than this: no fits (too few to tell the models apart)
 HESSIAN_STEP = 1e-3     # step in log parameters for the numerical Hessian
@@ -186,10 +187,10 @@ def fit_model(name: str, track: Track, error: LocationError, standard_errors: bo
             value = -sum(conditional_loglik(name, p, w)[0] for w in windows)
             return value if np.isfinite(value) else 1e300
 
-        first = _minimize(screened, min(starts, key=screened), bounds)
-        result = _minimize(objective, first.x, bounds)
+        first = _minimize(screened, min(starts, key=screened), bounds, _exact(name, natural, windows, estimate_error))
+        result = _minimize(objective, first.x, bounds, _exact(name, natural, [track], estimate_error))
     else:
-        result = _minimize(objective, min(starts, key=objective), bounds)
+        result = _minimize(objective, min(starts, key=objective), bounds, _exact(name, natural, [track], estimate_error))
     p = natural(result.x)
     at_edge = {key for key, value, (low, high) in zip(free, result.x, bounds)
                if min(value - low, high - value) < 1e-6}
@@ -223,10 +224,33 @@ def fit_model(name: str, track: Track, error: LocationError, standard_errors: bo
                      duration_s=float(track.t_s[-1] - track.t_s[0]))
 
 
-def _minimize(fun, x0, bounds):
-    """L-BFGS-B on ``fun`` in the box ``bounds``, with forward-difference gradients (see :func:`_with_gradient`)."""
+def _minimize(fun, x0, bounds, exact=None):
+    """L-BFGS-B on ``fun`` in the box ``bounds``: with ``exact`` (value and gradient together) where the
+    model has one, else with forward-difference gradients (see :func:`_with_gradient`)."""
     lo, hi = np.array(bounds, dtype=float).T
-    return minimize(_with_gradient(fun, lo, hi), x0, method="L-BFGS-B", jac=True, bounds=bounds)
+    return minimize(exact or _with_gradient(fun, lo, hi), x0, method="L-BFGS-B", jac=True, bounds=bounds)
+
+
+def _exact(name: str, natural, tracks: list[Track], estimate_error: bool):
+    """The negative log-likelihood summed over ``tracks`` with its exact gradient, for ``ou``; else None.
+
+    ``ou``'s gradient comes from the filter's sensitivity equations (:mod:`.ou_gradient`), one pass
+    instead of one per parameter and another for the value.
+    """
+    if name != "ou":
+        return None
+
+    def value_and_gradient(theta):
+        p = natural(theta)
+        value, grad = 0.0, np.zeros(theta.size)
+        for track in tracks:
+            ll, g = ou_loglik_gradient(p, track, estimate_error)
+            value, grad = value - ll, grad - g
+        if not (np.isfinite(value) and np.all(np.isfinite(grad))):
+            return 1e300, np.zeros(theta.size)
+        return value, grad
+
+    return value_and_gradient
 
 
 def _with_gradient(fun, lo: np.ndarray, hi: np.ndarray):
