@@ -25,6 +25,7 @@ import numba
 import numpy as np
 
 from .kfilter import LOG_2PI, MIN_VAR_M2
+from .kalman import transition
 from .likelihood import Track, error_variance
 
 
@@ -32,8 +33,8 @@ def ou_loglik_gradient(p: dict, track: Track, estimate_error: bool) -> tuple[flo
     """log p(fixes 2..n | fix 1) under ``ou`` and its gradient in (ln sigma, ln tau[, ln error SD])."""
     sigma2, tau = p["sigma_m"] ** 2, p["tau_position_s"]
     dt = track.dt_unique
-    phi = np.exp(-dt / tau)
-    q = -sigma2 * np.expm1(-2.0 * dt / tau)
+    F, Q = transition("ou", p, dt)
+    phi, q = F[:, 0, 0], Q[:, 0, 0]
     dphi_dtau = phi * dt / tau
     dq_dtau = -2.0 * sigma2 * phi * phi * dt / tau
     return _pass(phi, q, dphi_dtau, dq_dtau, track.dt_index, error_variance(track, p), estimate_error, sigma2,
@@ -65,12 +66,13 @@ def _pass(phi, q, dphi_dtau, dq_dtau, interval, r, estimate_error, sigma2, xy):
         if i > 0:
             d = interval[i]
             f, df = phi[d], dphi_dtau[d]
-            for k in range(n_par):
-                for c in range(3):
-                    dm[k, c] = f * dm[k, c] + (df * m[c] if k == 1 else 0.0)
-            for k in range(n_par):
-                dP[k] = f * f * dP[k] + (2.0 * f * df * P + dq_dtau[d] if k == 1 else 0.0) \
-                    + (2.0 * q[d] if k == 0 else 0.0)
+            # parameters: 0 ln sigma (moves q), 1 ln tau (moves phi and q), 2 ln error SD (moves r only)
+            for c in range(3):
+                dm[:, c] *= f
+                dm[1, c] += df * m[c]
+            dP *= f * f
+            dP[0] += 2.0 * q[d]
+            dP[1] += 2.0 * f * df * P + dq_dtau[d]
             for c in range(3):
                 m[c] = f * m[c]
             P = f * f * P + q[d]

@@ -172,9 +172,8 @@ def fit_model(model: str, t, y, dt_days: float):
         # best few polished on all points: most of the cost of many starts is iterations, not points.
         sub = _even_index(len(t), EXPLORE_POINTS) if len(t) > 2 * EXPLORE_POINTS else slice(None)
         explored, rss = explore(model, np.array(starts), t[sub], y[sub], span, dt_days, bounds, EXPLORE_NFEV)
-        inside = (bounds[0] + 1e-12, bounds[1] - 1e-12)  # trf starts strictly inside the box
-        starts = [np.clip(explored[i], *inside) for i in np.argsort(rss, kind="stable")[:POLISHED_STARTS]
-                  if np.isfinite(rss[i])] or starts
+        # the screen keeps its vectors in the box; the polish moves them off its faces itself
+        starts = [explored[i] for i in np.argsort(rss, kind="stable")[:POLISHED_STARTS] if np.isfinite(rss[i])] or starts
     best, best_rss = None, math.inf
     found: list[float] = []
     for start in starts:
