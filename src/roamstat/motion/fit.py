@@ -1,8 +1,8 @@
 """Maximum-likelihood fits of the motion models, standard errors and AICc selection.
 
-Parameters are optimised on the log scale (L-BFGS-B; exact gradient for ``ou``, forward differences
-otherwise) from the best of a small grid of starting values taken from the data (step-based
-diffusion, positional variance, median interval). Standard errors come from the inverse of a
+Parameters are optimised on the log scale (L-BFGS-B with the likelihood's exact gradient, from the
+filter's sensitivity equations: :mod:`.gradient`) from the best of a small grid of starting values
+taken from the data (step-based diffusion, positional variance, median interval). Standard errors come from the inverse of a
 central-difference Hessian of the negative log-likelihood in log parameters, carried to SI units
 by the delta method.
 Long tracks (more than ``SCREEN_ABOVE`` fixes) choose the start and run the first optimisation
@@ -20,6 +20,7 @@ Burnham, K.P. & Anderson, D.R. (2002) Model Selection and Multimodel Inference, 
 """
 from __future__ import annotations
 
+import functools
 import itertools
 from dataclasses import dataclass
 
@@ -31,15 +32,13 @@ from .kalman import MOTION_MODELS, MOVEMENT_PARAMS, PARAM_KEYS, RANGE_RESIDENT, 
 from .kalman import position_acf as _acf
 from .kalman import semivariance as _semivariance
 from .likelihood import Track, conditional_loglik, prepare_track
-from .ou_gradient import ou_loglik_gradient
+from .gradient import loglik_gradient
 
 MIN_FIXES = 10          # fewer fixes than this: no fits (too few to tell the models apart)
 HESSIAN_STEP = 1e-3     # step in log parameters for the numerical Hessian
-FD_STEP = 1e-8          # step in log parameters of the gradient's forward differences (L-BFGS-B's default)
-FD_REL_STEP = float(np.sqrt(np.finfo(float).eps))  # relative step where FD_STEP does not move a parameter
 # tracks longer than this start on windows of SCREEN_FIXES fixes in all (judgement, no source:
 # 20,000 fixes pin the parameters down to a few per cent, so the polish on the whole track
-# needs few numerical-gradient iterations)
+# needs few iterations)
 SCREEN_ABOVE = 60_000
 SCREEN_FIXES = 20_000
 SCREEN_WINDOWS = 20
@@ -156,6 +155,15 @@ def aicc(loglik: float, k: int, n_obs: int) -> float:
     return -2.0 * loglik + 2.0 * k + 2.0 * k * (k + 1) / (n_obs - k - 1)
 
 
+def natural_params(name: str, free: tuple, theta: np.ndarray) -> dict:
+    """The natural parameters of log parameters ``theta`` (in the order ``free``); for ``ou_ctcrw``,
+    whose likelihood is symmetric in its two time scales, the longer one is named tau_p."""
+    p = dict(zip(free, np.exp(theta)))
+    if name == "ou_ctcrw" and p["tau_velocity_s"] > p["tau_position_s"]:
+        p["tau_position_s"], p["tau_velocity_s"] = p["tau_velocity_s"], p["tau_position_s"]
+    return p
+
+
 def fit_model(name: str, track: Track, error: LocationError, standard_errors: bool = True) -> MotionFit:
     """Fit one model to a prepared track by maximum likelihood.
 
@@ -169,12 +177,7 @@ def fit_model(name: str, track: Track, error: LocationError, standard_errors: bo
     centre = np.log([scales[key] for key in free])
     bounds = [(c - np.log(BOUND_FACTOR), c + np.log(BOUND_FACTOR)) for c in centre]
 
-    def natural(theta):
-        p = dict(zip(free, np.exp(theta)))
-        if name == "ou_ctcrw" and p["tau_velocity_s"] > p["tau_position_s"]:
-            # the likelihood is symmetric in the two time scales: name the longer one tau_p
-            p["tau_position_s"], p["tau_velocity_s"] = p["tau_velocity_s"], p["tau_position_s"]
-        return p
+    natural = functools.partial(natural_params, name, free)
 
     def objective(theta):
         value = -conditional_loglik(name, natural(theta), track)[0]
@@ -188,10 +191,10 @@ def fit_model(name: str, track: Track, error: LocationError, standard_errors: bo
             value = -sum(conditional_loglik(name, p, w)[0] for w in windows)
             return value if np.isfinite(value) else 1e300
 
-        first = _minimize(screened, min(starts, key=screened), bounds, _exact(name, natural, windows, estimate_error))
-        result = _minimize(objective, first.x, bounds, _exact(name, natural, [track], estimate_error))
+        first = _minimize(_with_gradient(name, natural, windows, estimate_error), min(starts, key=screened), bounds)
+        result = _minimize(_with_gradient(name, natural, [track], estimate_error), first.x, bounds)
     else:
-        result = _minimize(objective, min(starts, key=objective), bounds, _exact(name, natural, [track], estimate_error))
+        result = _minimize(_with_gradient(name, natural, [track], estimate_error), min(starts, key=objective), bounds)
     p = natural(result.x)
     at_edge = {key for key, value, (low, high) in zip(free, result.x, bounds)
                if min(value - low, high - value) < 1e-6}
@@ -225,62 +228,27 @@ def fit_model(name: str, track: Track, error: LocationError, standard_errors: bo
                      duration_s=float(track.t_s[-1] - track.t_s[0]))
 
 
-def _minimize(fun, x0, bounds, exact=None):
-    """L-BFGS-B on ``fun`` in the box ``bounds``: with ``exact`` (value and gradient together) where the
-    model has one, else with forward-difference gradients (see :func:`_with_gradient`)."""
-    lo, hi = np.array(bounds, dtype=float).T
-    return minimize(exact or _with_gradient(fun, lo, hi), x0, method="L-BFGS-B", jac=True, bounds=bounds)
+def _minimize(value_and_gradient, x0, bounds):
+    """L-BFGS-B on ``value_and_gradient`` (one call gives both) in the box ``bounds``."""
+    return minimize(value_and_gradient, x0, method="L-BFGS-B", jac=True, bounds=bounds)
 
 
-def _exact(name: str, natural, tracks: list[Track], estimate_error: bool):
-    """The negative log-likelihood summed over ``tracks`` with its exact gradient, for ``ou``; else None.
-
-    ``ou``'s gradient comes from the filter's sensitivity equations (:mod:`.ou_gradient`), one pass
-    instead of one per parameter and another for the value.
-    """
-    if name != "ou":
-        return None
+def _with_gradient(name: str, natural, tracks: list[Track], estimate_error: bool):
+    """The negative log-likelihood summed over ``tracks`` with its exact gradient in the log parameters
+    ``theta`` (:func:`.gradient.loglik_gradient`: one filter pass gives both)."""
+    swaps = name == "ou_ctcrw"
 
     def value_and_gradient(theta):
         p = natural(theta)
         value, grad = 0.0, np.zeros(theta.size)
         for track in tracks:
-            ll, g = ou_loglik_gradient(p, track, estimate_error)
+            ll, g = loglik_gradient(name, p, track, estimate_error)
             value, grad = value - ll, grad - g
+        if swaps and p["tau_position_s"] != np.exp(theta[1]):
+            grad[[1, 2]] = grad[[2, 1]]  # natural() named theta's tau_v tau_p: give each its own derivative
         if not (np.isfinite(value) and np.all(np.isfinite(grad))):
             return 1e300, np.zeros(theta.size)
         return value, grad
-
-    return value_and_gradient
-
-
-def _with_gradient(fun, lo: np.ndarray, hi: np.ndarray):
-    """``fun`` returning its forward-difference gradient with its value, for ``minimize(jac=True)``.
-
-    The steps are those L-BFGS-B takes when given no gradient (its default
-    absolute step ``FD_STEP`` in ``scipy.optimize.approx_derivative``, inside
-    the box): h_i = 1e-8 (sqrt(eps) max(1, |x_i|) where that does not move
-    x_i), reversed where it would leave the box and fits the other way, else
-    set to the room left on the roomier side.  The optimiser's path is then
-    the one it takes with scipy's differences, without their bookkeeping,
-    which cost as much as the likelihood itself in the range model's refits
-    (measured on the sample).
-    """
-
-    def value_and_gradient(x):
-        f0 = fun(x)
-        h = np.full(x.size, FD_STEP)
-        h = np.where(x + h - x == 0.0, FD_REL_STEP * np.maximum(1.0, np.abs(x)), h)
-        below, above = x - lo, hi - x
-        fitting = np.abs(h) <= np.maximum(below, above)
-        h = np.where(((x + h < lo) | (x + h > hi)) & fitting, -h, h)
-        h = np.where(fitting, h, np.where(above >= below, above, -below))
-        grad = np.empty(x.size)
-        for i in range(x.size):
-            step = x.copy()
-            step[i] = x[i] + h[i]
-            grad[i] = (fun(step) - f0) / (step[i] - x[i])
-        return f0, grad
 
     return value_and_gradient
 

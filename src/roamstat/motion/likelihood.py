@@ -63,11 +63,6 @@ def prepare_track(t_s, x_m, y_m, error_sd_m) -> Track:
                  np.column_stack([rel, np.ones(t.size)]))
 
 
-def track_transitions(name: str, p: dict, track: Track) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """F and Q once per distinct interval and the row of each fix (see :func:`roamstat.motion.kfilter.forward`)."""
-    return (*transition(name, p, track.dt_unique), track.dt_index)
-
-
 def error_variance(track: Track, p: dict) -> np.ndarray:
     """Per-fix error variance: the known one, or the estimated SD squared at every fix."""
     if track.error_var is not None:
@@ -75,7 +70,7 @@ def error_variance(track: Track, p: dict) -> np.ndarray:
     return np.full(track.n, p["error_sd_m"] ** 2)
 
 
-def conditional_loglik(name: str, p: dict, track: Track, mean_xy=None) -> tuple[float, np.ndarray]:
+def conditional_loglik(name: str, p: dict, track: Track, mean_xy=None, transitions=None) -> tuple[float, np.ndarray]:
     """log p(fixes 2..n | fix 1) and the mean position used (NaN for unbounded models).
 
     Parameters
@@ -87,8 +82,11 @@ def conditional_loglik(name: str, p: dict, track: Track, mean_xy=None) -> tuple[
     track : Track
     mean_xy : array-like of 2, optional
         Fixed mean position (absolute metres) for a range-resident model; profiled when None.
+    transitions : (F, Q), optional
+        ``kalman.transition`` over ``track.dt_unique``, when the caller has them already.
     """
-    F, Q, interval = track_transitions(name, p, track)
+    F, Q = transition(name, p, track.dt_unique) if transitions is None else transitions
+    interval = track.dt_index
     r = error_variance(track, p)
     resident = name in RANGE_RESIDENT
     P0 = initial_cov(name, p, r[0])
