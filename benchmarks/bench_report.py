@@ -7,14 +7,15 @@
    drawing process (with 1 worker the main process draws).
 2. `roamstat run` on the sample with `--workers 1` against `roamstat nulltest` (steps, fits and
    the null simulations alone) on the same input, measured side by side in ``--pairs`` back-to-back
-   pairs (goal: ratio <= 2; the median is printed, as a shared machine's speed drifts).
+   pairs, the first command alternating (goal: ratio <= 2; wall and CPU time, the CPU time being that
+   of the command and its workers; the medians are printed, as a shared machine's speed drifts).
 3. A large deployment (default 1,000 animals x 2,000 fixes, simulated correlated random walks)
    run end to end with `--workers 2`, report included; prints the wall time, its stages, the
    peak memory (proportional set size of the run and its workers together, sampled every 0.5 s) and
    checks that every link and image of report.html and the animal pages resolves.
    This may take many minutes: shrink it with --animals/--fixes.
 
-    python benchmarks/bench_report.py [--animals 1000] [--fixes 2000] [--replicates 199] [--pairs 3] [--skip-large | --skip-small]
+    python benchmarks/bench_report.py [--animals 1000] [--fixes 2000] [--replicates 199] [--pairs 6] [--skip-large | --skip-small]
 """
 
 from __future__ import annotations
@@ -22,6 +23,7 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import resource
 import shutil
 import statistics
 import subprocess
@@ -40,8 +42,13 @@ SAMPLE = ROOT / "sample_tracks" / "collars.csv"
 GOAL_PER_ANIMAL_S, GOAL_RUN_RATIO = 0.3, 2.0
 
 
-def roamstat(*args: str) -> float:
-    return roamstat_peak(*args)[0]
+def roamstat(*args: str) -> tuple[float, float]:
+    """(wall s, CPU s) of one ``roamstat`` command: user and system time of it and its workers."""
+    exe = Path(sys.executable).with_name("roamstat")
+    before, started = resource.getrusage(resource.RUSAGE_CHILDREN), time.perf_counter()
+    subprocess.run([str(exe), *args, "--quiet", "--force"], stdout=subprocess.DEVNULL, check=True)
+    wall, after = time.perf_counter() - started, resource.getrusage(resource.RUSAGE_CHILDREN)
+    return wall, (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
 
 
 def roamstat_peak(*args: str) -> tuple[float, float]:
@@ -169,7 +176,7 @@ def main() -> None:
     parser.add_argument("--animals", type=int, default=1000)
     parser.add_argument("--fixes", type=int, default=2000)
     parser.add_argument("--replicates", type=int, default=199)
-    parser.add_argument("--pairs", type=int, default=3, help="nulltest/run pairs of part 2")
+    parser.add_argument("--pairs", type=int, default=6, help="nulltest/run pairs of part 2 (even: each order as often)")
     parser.add_argument("--skip-large", action="store_true", help="only parts 1 and 2")
     parser.add_argument("--skip-small", action="store_true", help="only part 3")
     args = parser.parse_args()
@@ -187,15 +194,23 @@ def main() -> None:
 
         print(f"2. whole run against its null simulations, sample, --workers 1, {args.pairs} pairs")
         out = WORK / "run-sample"
-        ratios = []
-        for _ in range(args.pairs):  # each pair back to back: a shared machine's speed drifts over minutes
-            nulls = roamstat("nulltest", str(SAMPLE), "--out", str(WORK / "nulltest-sample"), "--workers", "1")
-            whole = roamstat("run", str(SAMPLE), "--out", str(out), "--workers", "1")
-            ratios.append(whole / nulls)
+        walls, cpus = [], []
+        for pair in range(args.pairs):
+            # each pair back to back, as a shared machine's speed drifts over minutes; which command
+            # goes first alternates, so a drift within a pair favours neither
+            commands = {"nulltest": ("nulltest", str(SAMPLE), "--out", str(WORK / "nulltest-sample"), "--workers", "1"),
+                        "run": ("run", str(SAMPLE), "--out", str(out), "--workers", "1")}
+            order = ("nulltest", "run") if pair % 2 == 0 else ("run", "nulltest")
+            took = {name: roamstat(*commands[name]) for name in order}
+            (null_wall, null_cpu), (run_wall, run_cpu) = took["nulltest"], took["run"]
+            walls.append(run_wall / null_wall)
+            cpus.append(run_cpu / null_cpu)
             stages = {s["stage"]: s["duration_s"] for s in json.loads((out / "manifest.json").read_text())["stages"]}
-            print(f"   nulltest {nulls:.2f} s, run {whole:.2f} s: ratio {whole / nulls:.2f} (goal <= {GOAL_RUN_RATIO}); "
+            print(f"   {' then '.join(order)}: nulltest {null_wall:.2f} s ({null_cpu:.2f} s CPU), run {run_wall:.2f} s "
+                  f"({run_cpu:.2f} s CPU): ratio {walls[-1]:.2f} wall, {cpus[-1]:.2f} CPU (goal <= {GOAL_RUN_RATIO}); "
                   f"report stage {stages.get('report', float('nan')):.2f} s (load average {os.getloadavg()[0]:.1f})")
-        print(f"   median ratio {statistics.median(ratios):.2f} over {len(ratios)} pairs (goal <= {GOAL_RUN_RATIO})")
+        print(f"   median ratio over {len(walls)} pairs: {statistics.median(walls):.2f} wall, "
+              f"{statistics.median(cpus):.2f} CPU (goal <= {GOAL_RUN_RATIO})")
 
     if not args.skip_large:
         print(f"3. {args.animals} animals x {args.fixes} fixes, --workers 2, end to end")
