@@ -2,9 +2,9 @@
 
 Parameters are optimised on the log scale (L-BFGS-B with the likelihood's exact gradient, from the
 filter's sensitivity equations: :mod:`.gradient`) from the best of a small grid of starting values
-taken from the data (step-based diffusion, positional variance, median interval). Standard errors come from the inverse of a
-central-difference Hessian of the negative log-likelihood in log parameters, carried to SI units
-by the delta method.
+taken from the data (step-based diffusion, positional variance, median interval). Standard errors
+come from the inverse of a central-difference Hessian of the negative log-likelihood in log
+parameters, carried to SI units by the delta method.
 Long tracks (more than ``SCREEN_ABOVE`` fixes) choose the start and run the first optimisation
 on ``SCREEN_WINDOWS`` evenly spaced windows of ``SCREEN_FIXES`` fixes in all (the windows'
 conditional log-likelihoods summed, each window a track of its own), then polish on the whole
